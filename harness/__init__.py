@@ -1,0 +1,35 @@
+"""woodlot: compare ensemble methods for tabular data, reproducibly.
+
+Python API
+----------
+run_suite(path, **options)  run a suite file; see `harness.runner.run_suite`.
+load_results(folder)        the results of a folder as a DataFrame, one row per cell.
+"""
+
+from __future__ import annotations
+
+__version__ = "0.1.0"
+
+
+def run_suite(path, **options):
+    from harness.runner import run_suite as _run
+
+    return _run(path, **options)
+
+
+def load_results(folder, *, plan_only: bool = True):
+    """One row per cell of the folder's latest plan (all stored cells with ``plan_only=False``).
+
+    Columns include ``dataset``, ``strategy``, ``family``, ``method``, ``task``, ``repeat``,
+    ``fold``, ``status`` (``ok``, ``error``, ``timeout``), ``message``, ``fit_seconds``,
+    ``fit_cpu_seconds``, ``predict_seconds``, ``peak_memory_bytes``, ``model_bytes``,
+    ``n_train``, ``n_test``, ``curve`` (list of [members, score]) and one column per metric
+    named after its scikit-learn scorer.
+    """
+    from harness.store import Store
+
+    with Store(folder, create=False) as store:
+        return store.cells_frame(plan_only=plan_only)
+
+
+__all__ = ["run_suite", "load_results", "__version__"]

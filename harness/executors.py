@@ -1,0 +1,142 @@
+"""Executors run cells and yield their result rows as they finish.
+
+All executors share one interface, ``run(cells, datasets, timeout) -> iterator of rows``,
+so the runner's progress bar, store writes, resume and failure handling are the same
+whatever runs the cells. This module has the local one: a pool of worker processes owned by
+woodlot (not `concurrent.futures`), because a cell that exceeds its time limit must be
+stopped, which only killing its process can do. Each worker receives each dataset once.
+"""
+
+from __future__ import annotations
+
+import multiprocessing as mp
+import os
+import signal
+import time
+from collections import deque
+from multiprocessing.connection import wait
+from typing import Iterator, Protocol
+
+from harness.cells import ERROR, TIMEOUT, Cell, failed_row, run_cell
+from harness.datasets import Dataset
+
+
+class Executor(Protocol):
+    name: str
+
+    def run(self, cells: list[Cell], datasets: dict[str, Dataset],
+            timeout: float | None) -> Iterator[dict]:
+        """Run ``cells`` (``datasets`` keyed by fingerprint); yield each row as it finishes."""
+
+
+def _worker_main(conn) -> None:
+    """Loop of one worker process: keep datasets sent to it, run the cells it is given."""
+    signal.signal(signal.SIGINT, signal.SIG_IGN)  # the parent handles Ctrl-C and stops us
+    for var in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS"):
+        os.environ.setdefault(var, "1")
+    datasets: dict[str, Dataset] = {}
+    while True:
+        try:
+            message = conn.recv()
+        except (EOFError, KeyboardInterrupt):
+            return
+        kind = message[0]
+        if kind == "dataset":
+            datasets[message[1]] = message[2]
+        elif kind == "cell":
+            cell: Cell = message[1]
+            conn.send(run_cell(cell, datasets[cell.fingerprint]))
+        else:
+            return
+
+
+class _Worker:
+    def __init__(self, ctx) -> None:
+        self.conn, child = ctx.Pipe()
+        self.process = ctx.Process(target=_worker_main, args=(child,), daemon=True)
+        self.process.start()
+        child.close()
+        self.has: set[str] = set()
+        self.cell: Cell | None = None
+        self.started = 0.0
+
+    def give(self, cell: Cell, dataset: Dataset) -> None:
+        if cell.fingerprint not in self.has:
+            self.conn.send(("dataset", cell.fingerprint, dataset))
+            self.has.add(cell.fingerprint)
+        self.conn.send(("cell", cell))
+        self.cell, self.started = cell, time.perf_counter()
+
+    def stop(self, force: bool = False) -> None:
+        if not force:
+            try:
+                self.conn.send(("stop",))
+            except (OSError, BrokenPipeError):
+                pass
+            self.process.join(timeout=2)
+        if self.process.is_alive():
+            self.process.kill()
+            self.process.join(timeout=5)
+        self.conn.close()
+
+
+def _context():
+    try:
+        ctx = mp.get_context("forkserver")
+        ctx.set_forkserver_preload(["harness.cells"])
+        return ctx
+    except ValueError:  # platforms without forkserver
+        return mp.get_context("spawn")
+
+
+class LocalExecutor:
+    """``jobs`` worker processes on this machine, each cell single-threaded by default."""
+
+    name = "local"
+
+    def __init__(self, jobs: int | None = None) -> None:
+        self.jobs = max(1, jobs or os.cpu_count() or 1)
+
+    def run(self, cells: list[Cell], datasets: dict[str, Dataset],
+            timeout: float | None) -> Iterator[dict]:
+        if not cells:
+            return
+        ctx = _context()
+        pending = deque(cells)
+        workers = [_Worker(ctx) for _ in range(min(self.jobs, len(cells)))]
+        try:
+            while pending or any(w.cell for w in workers):
+                for w in workers:
+                    if w.cell is None and pending:
+                        cell = pending.popleft()
+                        w.give(cell, datasets[cell.fingerprint])
+                busy = [w for w in workers if w.cell is not None]
+                wait_for = None
+                if timeout is not None:
+                    now = time.perf_counter()
+                    wait_for = max(0.0, min(w.started + timeout - now for w in busy))
+                ready = wait([w.conn for w in busy], timeout=wait_for)
+                for w in busy:
+                    if w.conn in ready:
+                        try:
+                            row = w.conn.recv()
+                        except (EOFError, OSError):
+                            code = w.process.exitcode if not w.process.is_alive() else None
+                            yield failed_row(w.cell, ERROR, "worker process died while running "
+                                             f"this cell (exit code {code}); out of memory?")
+                            workers[workers.index(w)] = self._replace(w, ctx)
+                            continue
+                        w.cell = None
+                        yield row
+                    elif timeout is not None and time.perf_counter() - w.started > timeout:
+                        yield failed_row(w.cell, TIMEOUT, f"stopped after the cell time limit "
+                                         f"of {timeout:g} s")
+                        workers[workers.index(w)] = self._replace(w, ctx)
+        finally:
+            for w in workers:
+                w.stop(force=w.cell is not None)
+
+    @staticmethod
+    def _replace(worker: _Worker, ctx) -> _Worker:
+        worker.stop(force=True)
+        return _Worker(ctx)

@@ -1,0 +1,70 @@
+"""How a cell measures time, CPU and memory — each method stated so readers can judge it.
+
+- Wall time: ``time.perf_counter`` around the call.
+- CPU time: ``time.process_time`` (every thread of the process) plus the CPU of child
+  processes that finished during the call (``resource.getrusage(RUSAGE_CHILDREN)``).
+- Peak memory during fit: on Linux the kernel's high-water mark of resident memory is reset
+  just before the fit (``/proc/self/clear_refs``, value 5) and read after it (``VmHWM``); the
+  figure is that peak minus the resident size before the fit. Where the reset is not
+  possible the figure is left empty rather than guessed.
+"""
+
+from __future__ import annotations
+
+import resource
+import time
+from contextlib import contextmanager
+from dataclasses import dataclass
+from pathlib import Path
+
+_STATUS = Path("/proc/self/status")
+_CLEAR = Path("/proc/self/clear_refs")
+
+
+def _status_kib(field: str) -> int | None:
+    try:
+        for line in _STATUS.read_text().splitlines():
+            if line.startswith(field + ":"):
+                return int(line.split()[1])
+    except OSError:
+        return None
+    return None
+
+
+def reset_peak() -> bool:
+    try:
+        _CLEAR.write_text("5")
+        return True
+    except OSError:
+        return False
+
+
+@dataclass
+class Timing:
+    wall: float = 0.0
+    cpu: float = 0.0
+    peak_bytes: int | None = None
+
+
+def _cpu_now() -> float:
+    ch = resource.getrusage(resource.RUSAGE_CHILDREN)
+    return time.process_time() + ch.ru_utime + ch.ru_stime
+
+
+@contextmanager
+def measured(memory: bool = False):
+    """Context manager filling a `Timing` with wall, CPU and (optionally) peak memory."""
+    t = Timing()
+    base = None
+    if memory and reset_peak():
+        base = _status_kib("VmRSS")
+    c0 = _cpu_now()
+    w0 = time.perf_counter()
+    try:
+        yield t
+    finally:
+        t.wall = time.perf_counter() - w0
+        t.cpu = _cpu_now() - c0
+        if base is not None:
+            peak = _status_kib("VmHWM")
+            t.peak_bytes = max(0, (peak - base)) * 1024 if peak is not None else None

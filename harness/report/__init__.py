@@ -1,0 +1,1 @@
+"""Tables, plots and the report, regenerated from a results store alone."""

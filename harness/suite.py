@@ -1,0 +1,324 @@
+"""Suite files (TOML): parse and validate into frozen dataclasses before any work is done.
+
+Every error names the suite file, the entry and the field, with a suggestion for near-miss
+keys. Loading datasets and building splits happen later (`harness.plan`); this module only
+checks what can be checked from the text.
+"""
+
+from __future__ import annotations
+
+import re
+import tomllib
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+from sklearn.metrics import get_scorer_names
+
+from harness.datasets import SOURCES, DatasetSpec
+from harness.errors import UserError, closest
+from harness.strategies import Strategy, resolve
+
+RESAMPLINGS = ("cv", "holdout", "openml")
+DEFAULT_METRICS = {"classification": ("accuracy", "balanced_accuracy", "neg_log_loss"),
+                   "regression": ("neg_root_mean_squared_error", "r2")}
+SECTIONS = ("suite", "protocol", "measure", "dataset", "strategy", "scaling")
+
+
+@dataclass(frozen=True)
+class Protocol:
+    """How every dataset is resampled and scored (same splits for every strategy)."""
+
+    resampling: str = "cv"
+    folds: int = 5
+    repeats: int = 2
+    seed: int = 0
+    test_fraction: float | None = None
+    train_rows: int | None = None
+    metrics: dict[str, tuple[str, ...]] = field(default_factory=lambda: dict(DEFAULT_METRICS))
+    cell_timeout: float | None = 600.0  # seconds
+
+    def primary_metric(self, task: str) -> str:
+        return self.metrics[task][0]
+
+
+@dataclass(frozen=True)
+class Measure:
+    """Which measurements beyond scores and times each cell takes (all on by default)."""
+
+    memory: bool = True
+    model_size: bool = True
+    size_curve: bool = True
+    curve_points: int = 8
+
+
+@dataclass(frozen=True)
+class Scaling:
+    """The ``[scaling]`` section: a parallel speedup sweep."""
+
+    workers: tuple[int, ...] = ()
+    repeats: int = 3
+    datasets: tuple[str, ...] = ()
+    strategies: tuple[str, ...] = ()
+    noise_margin: float = 0.15
+
+
+@dataclass(frozen=True)
+class Suite:
+    path: Path
+    name: str
+    description: str
+    protocol: Protocol
+    measure: Measure
+    datasets: tuple[DatasetSpec, ...]
+    strategies: tuple[Strategy, ...]
+    scaling: Scaling | None
+    text: str
+
+    def strategy(self, name: str) -> Strategy:
+        return next(s for s in self.strategies if s.name == name)
+
+
+# key -> (python types accepted, description for messages)
+_PROTOCOL_KEYS = {
+    "resampling": (str, "text"), "folds": (int, "whole number"), "repeats": (int, "whole number"),
+    "seed": (int, "whole number"), "test_fraction": ((float, int), "number"),
+    "train_rows": (int, "whole number"), "metrics": (dict, "table"),
+    "cell_timeout": ((str, int, float), "duration such as \"90s\" or \"10m\""),
+}
+_MEASURE_KEYS = {"memory": (bool, "true or false"), "model_size": (bool, "true or false"),
+                 "size_curve": (bool, "true or false"), "curve_points": (int, "whole number")}
+_SCALING_KEYS = {"workers": (list, "list of whole numbers"), "repeats": (int, "whole number"),
+                 "datasets": (list, "list of dataset names"),
+                 "strategies": (list, "list of strategy names"),
+                 "noise_margin": ((float, int), "number")}
+_SUITE_KEYS = {"name": (str, "text"), "description": (str, "text")}
+_STRATEGY_KEYS = {"name": (str, "text"), "method": (str, "text"), "classifier": (str, "text"),
+                  "regressor": (str, "text"), "family": (str, "text"), "params": (dict, "table"),
+                  "grid": (dict, "table of lists"), "description": (str, "text")}
+_NAME = re.compile(r"^[A-Za-z0-9][A-Za-z0-9_.\-]*$")
+
+
+def parse_duration(value: Any, where: str, key: str) -> float | None:
+    """``90``, ``"90s"``, ``"10m"``, ``"1h"``, ``"none"`` → seconds (None for no limit)."""
+    if isinstance(value, bool):
+        raise UserError("expected a duration such as \"90s\" or \"10m\"", file=where, field=key)
+    if isinstance(value, (int, float)):
+        seconds = float(value)
+    else:
+        text = str(value).strip().lower()
+        if text in ("none", "off", "0"):
+            return None
+        m = re.fullmatch(r"(\d+(?:\.\d+)?)\s*(s|m|h)?", text)
+        if not m:
+            raise UserError(f"'{value}' is not a duration; write e.g. \"90s\", \"10m\" or \"1h\"",
+                            file=where, field=key)
+        seconds = float(m.group(1)) * {"s": 1, "m": 60, "h": 3600, None: 1}[m.group(2)]
+    if seconds <= 0:
+        raise UserError("a duration must be positive", file=where, field=key)
+    return seconds
+
+
+def _check_table(table: Any, spec: dict[str, tuple], where: str, section: str) -> dict[str, Any]:
+    if not isinstance(table, dict):
+        raise UserError(f"[{section}] must be a table", file=where)
+    for key, value in table.items():
+        if key not in spec:
+            raise UserError(f"unknown key '{key}'{closest(key, spec)}; [{section}] accepts "
+                            f"{', '.join(spec)}", file=where, field=key)
+        types, desc = spec[key]
+        types = types if isinstance(types, tuple) else (types,)
+        if isinstance(value, bool) and bool not in types:
+            raise UserError(f"expected a {desc}, got {value!r}", file=where, field=key)
+        if not isinstance(value, types):
+            raise UserError(f"expected a {desc}, got {type(value).__name__} {value!r}",
+                            file=where, field=key)
+    return table
+
+
+def read_toml(path: Path) -> tuple[dict[str, Any], str]:
+    if not path.exists():
+        raise UserError(f"suite file not found: {path}")
+    text = path.read_text(encoding="utf-8")
+    try:
+        return tomllib.loads(text), text
+    except tomllib.TOMLDecodeError as exc:
+        raise UserError(f"not valid TOML: {exc}", file=path) from None
+
+
+def load_suite(path: str | Path) -> Suite:
+    """Parse and validate a suite file. Raises `UserError` naming file, entry and field."""
+    path = Path(path)
+    data, text = read_toml(path)
+    for key in data:
+        if key not in SECTIONS:
+            raise UserError(f"unknown section '{key}'{closest(key, SECTIONS)}; a suite has "
+                            f"{', '.join('[' + s + ']' for s in SECTIONS)}", file=path)
+    head = _check_table(data.get("suite", {}), _SUITE_KEYS, f"{path}: [suite]", "suite")
+    name = head.get("name") or path.stem
+    if not _NAME.match(name):
+        raise UserError(f"'{name}' is not a usable name (letters, digits, - _ .)",
+                        file=f"{path}: [suite]", field="name")
+    protocol = _protocol(data.get("protocol", {}), f"{path}: [protocol]")
+    measure = Measure(**_check_table(data.get("measure", {}), _MEASURE_KEYS,
+                                     f"{path}: [measure]", "measure"))
+    datasets = _datasets(data.get("dataset", []), path, protocol)
+    strategies = _strategies(data.get("strategy", []), path)
+    scaling = None
+    if "scaling" in data:
+        scaling = _scaling(data["scaling"], f"{path}: [scaling]", datasets, strategies)
+    return Suite(path=path, name=name, description=head.get("description", ""),
+                 protocol=protocol, measure=measure, datasets=tuple(datasets),
+                 strategies=tuple(strategies), scaling=scaling, text=text)
+
+
+def _protocol(table: Any, where: str) -> Protocol:
+    t = dict(_check_table(table, _PROTOCOL_KEYS, where, "protocol"))
+    if t.get("resampling", "cv") not in RESAMPLINGS:
+        raise UserError(f"unknown resampling '{t['resampling']}'"
+                        f"{closest(t['resampling'], RESAMPLINGS)}; use one of "
+                        f"{', '.join(RESAMPLINGS)}", file=where, field="resampling")
+    for key, low in (("folds", 2), ("repeats", 1), ("train_rows", 2)):
+        if key in t and t[key] < low:
+            raise UserError(f"must be at least {low}, got {t[key]}", file=where, field=key)
+    if "test_fraction" in t:
+        if not 0 < t["test_fraction"] < 1:
+            raise UserError(f"must be between 0 and 1, got {t['test_fraction']}", file=where,
+                            field="test_fraction")
+        t["test_fraction"] = float(t["test_fraction"])
+    resampling = t.get("resampling", "cv")
+    if resampling == "holdout":
+        if ("test_fraction" in t) == ("train_rows" in t):
+            raise UserError("holdout needs exactly one of 'test_fraction' or 'train_rows'",
+                            file=where, field="resampling")
+        if "folds" in t:
+            raise UserError("holdout has no folds; use 'repeats' for several random splits",
+                            file=where, field="folds")
+    elif "test_fraction" in t or "train_rows" in t:
+        key = "test_fraction" if "test_fraction" in t else "train_rows"
+        raise UserError(f"'{key}' applies to resampling = \"holdout\" only", file=where, field=key)
+    metrics = dict(DEFAULT_METRICS)
+    if "metrics" in t:
+        known = set(get_scorer_names())
+        for task, names in t["metrics"].items():
+            if task not in DEFAULT_METRICS:
+                raise UserError(f"metrics are given per task: 'classification' or 'regression', "
+                                f"not '{task}'", file=where, field=f"metrics.{task}")
+            if isinstance(names, str):
+                names = [names]
+            if not isinstance(names, list) or not names:
+                raise UserError("expected a non-empty list of scikit-learn scorer names",
+                                file=where, field=f"metrics.{task}")
+            for n in names:
+                if n not in known:
+                    raise UserError(f"'{n}' is not a scikit-learn scorer name{closest(n, known)}",
+                                    file=where, field=f"metrics.{task}")
+            metrics[task] = tuple(names)
+        t["metrics"] = metrics
+    if "cell_timeout" in t:
+        t["cell_timeout"] = parse_duration(t["cell_timeout"], where, "cell_timeout")
+    return Protocol(**t)
+
+
+def _datasets(entries: Any, path: Path, protocol: Protocol) -> list[DatasetSpec]:
+    if not isinstance(entries, list) or not entries:
+        raise UserError("a suite needs at least one [[dataset]] entry", file=path)
+    specs, seen = [], set()
+    for i, entry in enumerate(entries, start=1):
+        where = f"{path}: dataset entry {i}"
+        if not isinstance(entry, dict):
+            raise UserError("each [[dataset]] must be a table", file=where)
+        name = entry.get("name")
+        if not isinstance(name, str) or not name:
+            raise UserError("every dataset needs a 'name'", file=where, field="name")
+        where = f"{path}: dataset '{name}' (entry {i})"
+        if not _NAME.match(name):
+            raise UserError(f"'{name}' is not a usable name (letters, digits, - _ .)",
+                            file=where, field="name")
+        if name in seen:
+            raise UserError(f"the name '{name}' is used by an earlier dataset", file=where,
+                            field="name")
+        seen.add(name)
+        source = entry.get("from")
+        if source not in SOURCES:
+            raise UserError(f"unknown source {source!r}{closest(str(source), SOURCES)}; use one "
+                            f"of {', '.join(SOURCES)}", file=where, field="from")
+        src = SOURCES[source]
+        for key in entry:
+            if key not in src.keys:
+                raise UserError(f"unknown key '{key}'{closest(key, src.keys)}; a '{source}' "
+                                f"dataset accepts {', '.join(src.keys)}", file=where, field=key)
+        for key in src.required:
+            if key not in entry:
+                raise UserError(f"a '{source}' dataset needs '{key}'", file=where, field=key)
+        if "task" in entry and entry["task"] not in ("classification", "regression"):
+            raise UserError(f"'{entry['task']}' is not a task; use 'classification' or "
+                            "'regression'", file=where, field="task")
+        for key in ("categorical", "drop"):
+            if key in entry and not (isinstance(entry[key], list)
+                                     and all(isinstance(c, str) for c in entry[key])):
+                raise UserError("expected a list of column names", file=where, field=key)
+        if "params" in entry and not isinstance(entry["params"], dict):
+            raise UserError("expected a table of parameters", file=where, field="params")
+        options = {k: v for k, v in entry.items() if k not in ("name", "from")}
+        spec = DatasetSpec(name=name, source=source, options=options, suite_file=path,
+                           position=i)
+        checker = getattr(src, "check", None)
+        if checker is not None:
+            checker(spec)
+        specs.append(spec)
+    return specs
+
+
+def _strategies(entries: Any, path: Path) -> list[Strategy]:
+    if not isinstance(entries, list) or not entries:
+        raise UserError("a suite needs at least one [[strategy]] entry", file=path)
+    out, seen = [], set()
+    for i, entry in enumerate(entries, start=1):
+        where = f"{path}: strategy entry {i}"
+        if not isinstance(entry, dict):
+            raise UserError("each [[strategy]] must be a table", file=where)
+        name = entry.get("name")
+        if not isinstance(name, str) or not name:
+            raise UserError("every strategy needs a 'name'", file=where, field="name")
+        where = f"{path}: strategy '{name}' (entry {i})"
+        if not _NAME.match(name):
+            raise UserError(f"'{name}' is not a usable name (letters, digits, - _ .)",
+                            file=where, field="name")
+        _check_table(entry, _STRATEGY_KEYS, where, "strategy")
+        if "method" in entry and ("classifier" in entry or "regressor" in entry):
+            raise UserError("give 'method' or 'classifier'/'regressor', not both", file=where,
+                            field="method")
+        for key, values in entry.get("grid", {}).items():
+            if not isinstance(values, list) or not values:
+                raise UserError("each grid entry is a non-empty list of values", file=where,
+                                field=f"grid.{key}")
+        for strategy in resolve(entry, where):
+            if strategy.name in seen:
+                raise UserError(f"the name '{strategy.name}' is used by an earlier strategy",
+                                file=where, field="name")
+            seen.add(strategy.name)
+            out.append(strategy)
+    return out
+
+
+def _scaling(table: Any, where: str, datasets, strategies) -> Scaling:
+    t = dict(_check_table(table, _SCALING_KEYS, where, "scaling"))
+    if "workers" in t:
+        if not t["workers"] or not all(isinstance(w, int) and not isinstance(w, bool) and w >= 1
+                                       for w in t["workers"]):
+            raise UserError("expected a list of whole numbers of at least 1", file=where,
+                            field="workers")
+        t["workers"] = tuple(sorted(set(t["workers"])))
+    names = {d.name for d in datasets}
+    snames = {s.name for s in strategies}
+    for key, known in (("datasets", names), ("strategies", snames)):
+        for n in t.get(key, []):
+            if n not in known:
+                raise UserError(f"'{n}' is not a {key[:-1]} of this suite{closest(n, known)}",
+                                file=where, field=key)
+        if key in t:
+            t[key] = tuple(t[key])
+    if t.get("repeats", 3) < 1:
+        raise UserError("must be at least 1", file=where, field="repeats")
+    return Scaling(**t)
