@@ -60,7 +60,7 @@ def changed_datasets(plan: Plan, store: Store) -> list[str]:
 def run_suite(path: str | Path, *, out: str | Path | None = None, jobs: int | None = None,
               fresh: bool = False, retry_failed: bool = False, executor: Executor | None = None,
               progress: bool | None = None, echo: Callable[[str], None] | None = None,
-              command: str | None = None) -> RunResult:
+              command: str | None = None, write_outputs: bool = True) -> RunResult:
     """Run every cell of a suite not already in its results store, then write the outputs.
 
     Parameters
@@ -73,6 +73,8 @@ def run_suite(path: str | Path, *, out: str | Path | None = None, jobs: int | No
     executor : an executor object (default: `LocalExecutor` with ``jobs``).
     progress : show a progress bar (default: when stderr is a terminal).
     echo : where one-line notes go (default: stderr).
+    command : the command line to record in the provenance (default: ``sys.argv``).
+    write_outputs : write tables and plots at the end (``woodlot report`` can do it later).
 
     Nothing is written before the suite and every dataset pass their checks.
     """
@@ -80,9 +82,11 @@ def run_suite(path: str | Path, *, out: str | Path | None = None, jobs: int | No
     suite = load_suite(path)
     plan = make_plan(suite)
     folder = results_folder(suite, out)
+    executor = executor or LocalExecutor(jobs)
+    if hasattr(executor, "connect"):
+        executor.connect()  # an unreachable cluster fails here, before anything is written
     if fresh:
         _clear(folder)
-    executor = executor or LocalExecutor(jobs)
     with Store(folder) as store:
         result = RunResult(folder=folder, planned=len(plan.cells), reused=0)
         result.notes = changed_datasets(plan, store)
@@ -96,6 +100,7 @@ def run_suite(path: str | Path, *, out: str | Path | None = None, jobs: int | No
         prov = provenance.collect(command)
         prov.update(suite=str(suite.path), suite_name=suite.name, executor=executor.name,
                     jobs=getattr(executor, "jobs", None),
+                    **(executor.describe() if hasattr(executor, "describe") else {}),
                     metrics={k: list(v) for k, v in suite.protocol.metrics.items()},
                     timing="cells side by side, one thread each")
         run = store.start_run(suite.name, suite.text, prov["command"], prov)
@@ -114,5 +119,6 @@ def run_suite(path: str | Path, *, out: str | Path | None = None, jobs: int | No
             bar.close()
         prov["load_average_after"] = provenance.load_average()
         store.finish_run(run, "finished", prov)
-    result.outputs = build_outputs(folder)
+    if write_outputs:
+        result.outputs = build_outputs(folder)
     return result

@@ -172,8 +172,7 @@ def finish(name: str, X: pd.DataFrame, y: pd.Series, *, source: str, where: str,
                             f"{_few(X.columns)})", file=where, field="categorical")
     for c in X.columns:
         if c in categorical:
-            X[c] = X[c].astype("string").astype("category") if not isinstance(
-                X[c].dtype, pd.CategoricalDtype) else X[c]
+            X[c] = as_category(X[c])
         elif not pd.api.types.is_numeric_dtype(X[c]) or pd.api.types.is_bool_dtype(X[c]):
             converted = pd.to_numeric(X[c], errors="coerce")
             if converted.notna().sum() < X[c].notna().sum():
@@ -184,6 +183,17 @@ def finish(name: str, X: pd.DataFrame, y: pd.Series, *, source: str, where: str,
     fp = fingerprint(X, y, task, categorical, splits)
     return Dataset(name=name, X=X, y=y, task=task, categorical=categorical, fingerprint=fp,
                    source=source, splits=splits, meta=dict(meta or {}))
+
+
+def as_category(column: pd.Series) -> pd.Series:
+    """Categories as plain text, missing values as NaN (what scikit-learn's imputers and
+    encoders expect; pandas' own NA marker breaks their missing-value checks)."""
+    missing = column.isna().to_numpy()
+    text = np.array([str(v) for v in column.to_numpy(dtype=object)], dtype=object)
+    text[missing] = np.nan
+    categories = sorted({v for v in text[~missing]})
+    return pd.Series(pd.Categorical(text, categories=categories), index=column.index,
+                     name=column.name)
 
 
 def _few(columns, n: int = 8) -> str:

@@ -1,0 +1,166 @@
+"""Bad suite files: one clear line naming file, entry and field; exit status 2; nothing written."""
+
+from __future__ import annotations
+
+import textwrap
+
+import numpy as np
+import pandas as pd
+import pytest
+
+from harness.cli import main
+
+HEAD = """
+[suite]
+name = "bad"
+
+[protocol]
+folds = 3
+repeats = 1
+"""
+TREE = """
+[[strategy]]
+name = "tree"
+method = "single-tree"
+"""
+WINE = """
+[[dataset]]
+name = "wine"
+from = "sklearn"
+load = "load_wine"
+"""
+
+
+def run_cli(args, capsys):
+    code = main(args)
+    captured = capsys.readouterr()
+    return code, captured.err.strip()
+
+
+def check_bad(write_suite, capsys, tmp_path, body, *expected):
+    path = write_suite(body)
+    out = tmp_path / "out"
+    for command in (["check", str(path)], ["run", str(path), "--out", str(out), "--quiet"]):
+        code, err = run_cli(command, capsys)
+        assert code == 2, err
+        assert len(err.splitlines()) == 1, err  # one line, no traceback
+        assert str(path) in err
+        for text in expected:
+            assert text in err, err
+    assert not out.exists()  # nothing written
+    return err
+
+
+def test_malformed_toml_names_line_and_column(write_suite, capsys, tmp_path):
+    err = check_bad(write_suite, capsys, tmp_path, HEAD + "folds = = 3\n" + WINE + TREE,
+                    "not valid TOML")
+    assert "line" in err and "col" in err
+
+
+def test_unknown_key_suggests_closest(write_suite, capsys, tmp_path):
+    check_bad(write_suite, capsys, tmp_path, HEAD.replace("folds", "fold") + WINE + TREE,
+              "[protocol]", "field 'fold'", "did you mean 'folds'")
+    check_bad(write_suite, capsys, tmp_path, HEAD + WINE.replace("load =", "lod =") + TREE,
+              "dataset 'wine'", "field 'lod'", "did you mean 'load'")
+
+
+def test_wrong_type(write_suite, capsys, tmp_path):
+    check_bad(write_suite, capsys, tmp_path, HEAD.replace("folds = 3", 'folds = "three"') + WINE
+              + TREE, "field 'folds'", "whole number")
+
+
+def test_unknown_method_and_parameter(write_suite, capsys, tmp_path):
+    check_bad(write_suite, capsys, tmp_path, HEAD + WINE + TREE.replace("single-tree", "singel-tree"),
+              "strategy 'tree'", "field 'method'", "did you mean 'single-tree'")
+    check_bad(write_suite, capsys, tmp_path, HEAD + WINE + TREE + 'params = { max_dept = 3 }\n',
+              "strategy 'tree'", "field 'params.max_dept'", "did you mean 'max_depth'")
+    check_bad(write_suite, capsys, tmp_path, HEAD + WINE + TREE + 'params = { max_depth = -3 }\n',
+              "strategy 'tree'", "field 'params'", "max_depth")
+
+
+def test_duplicate_names(write_suite, capsys, tmp_path):
+    check_bad(write_suite, capsys, tmp_path, HEAD + WINE + WINE + TREE, "entry 2",
+              "field 'name'", "earlier dataset")
+    check_bad(write_suite, capsys, tmp_path, HEAD + WINE + TREE + TREE, "entry 2",
+              "earlier strategy")
+
+
+def test_unknown_loader_and_generator_parameter(write_suite, capsys, tmp_path):
+    check_bad(write_suite, capsys, tmp_path, HEAD + WINE.replace("load_wine", "load_wines") + TREE,
+              "field 'load'", "did you mean 'load_wine'")
+    gen = """
+    [[dataset]]
+    name = "g"
+    from = "generator"
+    make = "make_moons"
+    params = { n_sample = 100 }
+    """
+    check_bad(write_suite, capsys, tmp_path, HEAD + textwrap.dedent(gen) + TREE,
+              "dataset 'g'", "field 'params.n_sample'", "did you mean 'n_samples'")
+
+
+def _file_entry(path, target="y", extra=""):
+    return f'\n[[dataset]]\nname = "mine"\nfrom = "file"\npath = "{path}"\ntarget = "{target}"\n{extra}'
+
+
+def test_missing_file(write_suite, capsys, tmp_path):
+    check_bad(write_suite, capsys, tmp_path, HEAD + _file_entry("nowhere.csv") + TREE,
+              "dataset 'mine'", "field 'path'", "file not found")
+
+
+def test_missing_target_column(write_suite, capsys, tmp_path):
+    pd.DataFrame({"a": range(30), "label": [0, 1] * 15}).to_csv(tmp_path / "d.csv", index=False)
+    check_bad(write_suite, capsys, tmp_path, HEAD + _file_entry("d.csv", "lable") + TREE,
+              "dataset 'mine'", "field 'target'", "did you mean 'label'")
+
+
+def test_single_class_target(write_suite, capsys, tmp_path):
+    pd.DataFrame({"a": range(30), "y": ["yes"] * 30}).to_csv(tmp_path / "d.csv", index=False)
+    check_bad(write_suite, capsys, tmp_path, HEAD + _file_entry("d.csv") + TREE,
+              "field 'target'", "single class")
+
+
+def test_class_smaller_than_folds(write_suite, capsys, tmp_path):
+    y = ["a"] * 20 + ["b"] * 20 + ["c"] * 2
+    pd.DataFrame({"x": np.arange(42.0), "y": y}).to_csv(tmp_path / "d.csv", index=False)
+    check_bad(write_suite, capsys, tmp_path, HEAD + _file_entry("d.csv") + TREE,
+              "field 'target'", "class 'c' has 2 row(s)", "3 folds")
+
+
+def test_empty_dataset(write_suite, capsys, tmp_path):
+    (tmp_path / "d.csv").write_text("x,y\n")
+    check_bad(write_suite, capsys, tmp_path, HEAD + _file_entry("d.csv") + TREE, "empty")
+
+
+def test_non_numeric_regression_target(write_suite, capsys, tmp_path):
+    pd.DataFrame({"x": range(30), "y": ["low", "high", "mid"] * 10}).to_csv(tmp_path / "d.csv",
+                                                                           index=False)
+    check_bad(write_suite, capsys, tmp_path,
+              HEAD + _file_entry("d.csv", extra='task = "regression"\n') + TREE,
+              "field 'target'", "numeric target")
+
+
+def test_rows_of_different_lengths(write_suite, capsys, tmp_path):
+    (tmp_path / "d.csv").write_text("x,z,y\n1,2,0\n3,4,1\n5,6,7,8\n" + "1,2,0\n" * 10)
+    check_bad(write_suite, capsys, tmp_path, HEAD + _file_entry("d.csv") + TREE,
+              "field 'path'", "does not parse")
+
+
+def test_holdout_needs_one_size(write_suite, capsys, tmp_path):
+    body = '[protocol]\nresampling = "holdout"\nrepeats = 2\n' + WINE + TREE
+    check_bad(write_suite, capsys, tmp_path, body, "[protocol]", "exactly one of")
+
+
+def test_unknown_metric(write_suite, capsys, tmp_path):
+    body = HEAD + 'metrics = { classification = ["acuracy"] }\n' + WINE + TREE
+    check_bad(write_suite, capsys, tmp_path, body, "field 'metrics.classification'",
+              "did you mean 'accuracy'")
+
+
+def test_valid_suite_check_prints_plan_without_fitting(write_suite, capsys, tmp_path):
+    path = write_suite(HEAD + WINE + TREE)
+    assert main(["check", str(path)]) == 0
+    out = capsys.readouterr().out
+    assert "wine" in out and "178" in out and "classification" in out
+    assert "3 cells" in out and "nothing was fitted" in out
+    assert not (tmp_path / "results").exists()
