@@ -146,8 +146,13 @@ def read_toml(path: Path) -> tuple[dict[str, Any], str]:
         raise UserError(f"not valid TOML: {exc}", file=path) from None
 
 
-def load_suite(path: str | Path) -> Suite:
-    """Parse and validate a suite file. Raises `UserError` naming file, entry and field."""
+def load_suite(path: str | Path, *, expand: bool = True) -> Suite:
+    """Parse and validate a suite file. Raises `UserError` naming file, entry and field.
+
+    With ``expand`` (the default) an OpenML benchmark-suite entry (``suite = ID``) becomes one
+    entry per kept task, which needs the suite's task list (cached, or from the server);
+    ``woodlot fetch`` reads the file with ``expand=False`` to download it first.
+    """
     path = Path(path)
     data, text = read_toml(path)
     for key in data:
@@ -162,7 +167,7 @@ def load_suite(path: str | Path) -> Suite:
     protocol = _protocol(data.get("protocol", {}), f"{path}: [protocol]")
     measure = Measure(**_check_table(data.get("measure", {}), _MEASURE_KEYS,
                                      f"{path}: [measure]", "measure"))
-    datasets = _datasets(data.get("dataset", []), path, protocol)
+    datasets = _datasets(data.get("dataset", []), path, expand)
     strategies = _strategies(data.get("strategy", []), path)
     scaling = None
     if "scaling" in data:
@@ -220,7 +225,7 @@ def _protocol(table: Any, where: str) -> Protocol:
     return Protocol(**t)
 
 
-def _datasets(entries: Any, path: Path, protocol: Protocol) -> list[DatasetSpec]:
+def _datasets(entries: Any, path: Path, expand: bool) -> list[DatasetSpec]:
     if not isinstance(entries, list) or not entries:
         raise UserError("a suite needs at least one [[dataset]] entry", file=path)
     specs, seen = [], set()
@@ -251,7 +256,8 @@ def _datasets(entries: Any, path: Path, protocol: Protocol) -> list[DatasetSpec]
         for key in src.required:
             if key not in entry:
                 raise UserError(f"a '{source}' dataset needs '{key}'", file=where, field=key)
-        if "task" in entry and entry["task"] not in ("classification", "regression"):
+        if "task" in entry and source != "openml" \
+                and entry["task"] not in ("classification", "regression"):
             raise UserError(f"'{entry['task']}' is not a task; use 'classification' or "
                             "'regression'", file=where, field="task")
         for key in ("categorical", "drop"):
@@ -263,10 +269,19 @@ def _datasets(entries: Any, path: Path, protocol: Protocol) -> list[DatasetSpec]
         options = {k: v for k, v in entry.items() if k not in ("name", "from")}
         spec = DatasetSpec(name=name, source=source, options=options, suite_file=path,
                            position=i)
-        checker = getattr(src, "check", None)
-        if checker is not None:
-            checker(spec)
-        specs.append(spec)
+        if src.check is not None:
+            src.check(spec)
+        if expand and source == "openml" and "suite" in options:
+            from harness.datasets.openml_source import expand_benchmark_suite
+
+            for member in expand_benchmark_suite(spec):
+                if member.name in seen:
+                    raise UserError(f"the expanded name '{member.name}' is used by an earlier "
+                                    "dataset", file=where, field="name")
+                seen.add(member.name)
+                specs.append(member)
+        else:
+            specs.append(spec)
     return specs
 
 

@@ -14,6 +14,7 @@ from harness.datasets.base import (CLASSIFICATION, REGRESSION, TASKS, Dataset, P
                                    fingerprint, finish, infer_task)
 from harness.datasets.bundled import load_generator, load_sklearn
 from harness.datasets.files import load_file
+from harness.datasets.openml_source import check_openml_entry, load_openml
 from harness.datasets.spec import DatasetSpec
 
 COMMON_KEYS = ("name", "from", "task", "categorical", "drop")
@@ -38,6 +39,7 @@ SOURCES: dict[str, Source] = {
     "sklearn": Source(required=("load",), optional=(), load=load_sklearn),
     "generator": Source(required=("make",), optional=("params",), load=load_generator),
     "file": Source(required=("path", "target"), optional=("delimiter", "decimal"), load=load_file),
+    "openml": Source(required=(), optional=("dataset", "task", "suite", "target", "expect", "max_rows", "max_columns", "max_classes"), load=load_openml, network=True, check=check_openml_entry),
 }
 
 
