@@ -179,6 +179,9 @@ def finish(name: str, X: pd.DataFrame, y: pd.Series, *, source: str, where: str,
                 raise UserError(f"column '{c}' is neither numeric nor listed as categorical",
                                 file=where, field="categorical")
             X[c] = converted.astype(float)
+        elif isinstance(X[c].dtype, pd.api.extensions.ExtensionDtype):
+            # nullable Int64/Float64 (Parquet): pd.NA would reach the estimators; NaN does not
+            X[c] = X[c].to_numpy(dtype=float, na_value=np.nan)
     categorical = tuple(c for c in X.columns if c in set(categorical))
     fp = fingerprint(X, y, task, categorical, splits)
     return Dataset(name=name, X=X, y=y, task=task, categorical=categorical, fingerprint=fp,

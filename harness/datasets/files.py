@@ -38,6 +38,22 @@ def sniff_csv(path: Path, sample_bytes: int = 64_000) -> tuple[str, str]:
     return delimiter, decimal
 
 
+def ragged_row(path: Path, delimiter: str) -> tuple[int, int, int] | None:
+    """(line, fields, header fields) for the first CSV row whose length differs from the
+    header's, or None. pandas fills short rows with missing values without a word."""
+    with path.open(encoding="utf-8", errors="replace", newline="") as f:
+        reader = csv.reader(f, delimiter=delimiter)
+        width = None
+        for row in reader:
+            if not row or (len(row) == 1 and not row[0].strip()):
+                continue  # blank lines, which pandas skips too
+            if width is None:
+                width = len(row)
+            elif len(row) != width:
+                return reader.line_num, len(row), width
+    return None
+
+
 def read_table(path: Path, *, where: str, delimiter: str | None = None,
                decimal: str | None = None) -> pd.DataFrame:
     """Read a CSV or Parquet file, with one clear message for every way it can fail."""
@@ -61,6 +77,12 @@ def read_table(path: Path, *, where: str, delimiter: str | None = None,
     except (UnicodeDecodeError, pd.errors.EmptyDataError) as exc:
         raise UserError(f"{path} is not a readable CSV file ({exc})", file=where,
                         field="path") from None
+    ragged = ragged_row(path, delimiter)
+    if ragged is not None:
+        line, n, width = ragged
+        raise UserError(f"{path} line {line} has {n} fields where the header has {width} "
+                        f"(delimiter {delimiter!r}): rows of different lengths", file=where,
+                        field="path")
     return frame
 
 
