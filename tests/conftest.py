@@ -20,6 +20,21 @@ def write_suite(tmp_path):
     return write
 
 
+@pytest.fixture(scope="module")
+def run_once(tmp_path_factory):
+    """run_once(body, name="t") -> the RunResult of running suite ``body`` (dedented) into a
+    fresh folder, two jobs, no progress bar; module-scoped, for tests that share one run."""
+    from harness import run_suite
+
+    def run(body: str, name: str = "t"):
+        tmp = tmp_path_factory.mktemp(name)
+        path = tmp / f"{name}.toml"
+        path.write_text(textwrap.dedent(body).lstrip(), encoding="utf-8")
+        return run_suite(path, out=tmp / "out", jobs=2, progress=False)
+
+    return run
+
+
 SMALL_SUITE = """
 [suite]
 name = "small"

@@ -89,6 +89,9 @@ def cd_figure(avg_ranks: Mapping[str, float], cd: float | None,
         label_w = max([_text_width(fig, _label(n, ranks[n], True), _FONT) for n in order])
         axis_w = max(3.5, 0.55 * (hi - 1))
         margin = label_w + _PAD + 0.35
+        title_w = _text_width(fig, title, _FONT + 2) + 0.4
+        if axis_w + 2 * margin < title_w:  # a long title widens the axis, never gets cut off
+            axis_w = title_w - 2 * margin
         width = axis_w + 2 * margin
 
         y_title = 0.30
