@@ -2,9 +2,10 @@
 
 All executors share one interface, ``run(cells, datasets, timeout) -> iterator of rows``,
 so the runner's progress bar, store writes, resume and failure handling are the same
-whatever runs the cells. This module has the local one: a pool of worker processes owned by
-woodlot (not `concurrent.futures`), because a cell that exceeds its time limit must be
-stopped, which only killing its process can do. Each worker receives each dataset once.
+whatever runs the cells. This module has the local one (`harness.dask_executor` has the
+Dask one): a pool of worker processes owned by woodlot (not `concurrent.futures`), because a
+cell that exceeds its time limit must be stopped, which only killing its process can do. Each
+worker receives each dataset once.
 """
 
 from __future__ import annotations
@@ -95,7 +96,11 @@ class LocalExecutor:
     name = "local"
 
     def __init__(self, jobs: int | None = None) -> None:
-        self.jobs = max(1, jobs or os.cpu_count() or 1)
+        if jobs is not None and jobs < 1:
+            from harness.errors import UserError
+
+            raise UserError(f"--jobs must be at least 1, got {jobs}")
+        self.jobs = jobs or os.cpu_count() or 1
 
     def run(self, cells: list[Cell], datasets: dict[str, Dataset],
             timeout: float | None) -> Iterator[dict]:
@@ -140,3 +145,24 @@ class LocalExecutor:
     def _replace(worker: _Worker, ctx) -> _Worker:
         worker.stop(force=True)
         return _Worker(ctx)
+
+
+def make_executor(kind: str = "local", *, jobs: int | None = None, scheduler: str | None = None,
+                  workers: int | None = None) -> Executor:
+    """The executor the command line's options name: ``local`` (``jobs`` processes) or
+    ``dask`` (``scheduler`` address of a running cluster, or ``workers`` for a local one)."""
+    from harness.errors import UserError
+
+    if kind == "local":
+        if scheduler is not None or workers is not None:
+            raise UserError("--scheduler and --workers are options of the Dask executor; add "
+                            "--executor dask")
+        return LocalExecutor(jobs)
+    if kind == "dask":
+        if jobs is not None:
+            raise UserError("--jobs is for the local executor; with --executor dask the "
+                            "cluster's workers run the cells (--workers N for a local cluster)")
+        from harness.dask_executor import DaskExecutor
+
+        return DaskExecutor(scheduler=scheduler, workers=workers)
+    raise UserError(f"unknown executor '{kind}'; choose local or dask")

@@ -53,3 +53,14 @@ def collect(command: str | None = None) -> dict:
         "libraries": versions(),
         "started": time.strftime("%Y-%m-%dT%H:%M:%S%z"),
     }
+
+
+def executor_text(prov: dict) -> str:
+    """Where a run's cells ran, in words, from its provenance."""
+    name, dask = prov.get("executor", "–"), prov.get("dask")
+    if not dask:
+        return f"{name}, {prov.get('jobs', '–')} jobs"
+    hosts = dask.get("worker_hosts", {})
+    return (f"{name}: {dask.get('cluster')} at {dask.get('scheduler')}, "
+            f"{sum(hosts.values())} worker processes on "
+            + ", ".join(f"{host} ({n})" for host, n in hosts.items()))

@@ -4,12 +4,14 @@ from __future__ import annotations
 
 import shutil
 import sys
+import time
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Callable
 
 from harness import provenance
-from harness.cells import OK
+from harness.cells import OK, Cell
+from harness.errors import UserError
 from harness.executors import Executor, LocalExecutor
 from harness.plan import Plan, make_plan
 from harness.progress import Progress
@@ -28,6 +30,7 @@ class RunResult:
     ran: int = 0
     failed: int = 0
     interrupted: bool = False
+    stopped: bool = False  # the deadline came before every selected cell had run
     notes: list[str] = field(default_factory=list)
     outputs: Outputs | None = None
 
@@ -60,7 +63,9 @@ def changed_datasets(plan: Plan, store: Store) -> list[str]:
 def run_suite(path: str | Path, *, out: str | Path | None = None, jobs: int | None = None,
               fresh: bool = False, retry_failed: bool = False, executor: Executor | None = None,
               progress: bool | None = None, echo: Callable[[str], None] | None = None,
-              command: str | None = None, write_outputs: bool = True) -> RunResult:
+              command: str | None = None, write_outputs: bool = True,
+              select: Callable[[Cell], bool] | None = None,
+              deadline: float | None = None) -> RunResult:
     """Run every cell of a suite not already in its results store, then write the outputs.
 
     Parameters
@@ -75,6 +80,9 @@ def run_suite(path: str | Path, *, out: str | Path | None = None, jobs: int | No
     echo : where one-line notes go (default: stderr).
     command : the command line to record in the provenance (default: ``sys.argv``).
     write_outputs : write tables and plots at the end (``woodlot report`` can do it later).
+    select : run only the cells for which this returns True (the plan keeps them all).
+    deadline : a ``time.perf_counter()`` value; no cell starts after it and running cells are
+        stopped at it (recorded as timeouts). `RunResult.stopped` says whether it was reached.
 
     Nothing is written before the suite and every dataset pass their checks.
     """
@@ -93,7 +101,7 @@ def run_suite(path: str | Path, *, out: str | Path | None = None, jobs: int | No
         for note in result.notes:
             echo(note)
         done = store.finished_keys(include_failed=not retry_failed)
-        todo = [c for c in plan.cells if c.key not in done]
+        todo = [c for c in plan.cells if c.key not in done and (select is None or select(c))]
         result.reused = len(plan.cells) - len(todo)
         store.set_plan(c.key for c in plan.cells)
         store.record_datasets((d.fingerprint, d.name, d.summary()) for d in plan.datasets.values())
@@ -106,18 +114,37 @@ def run_suite(path: str | Path, *, out: str | Path | None = None, jobs: int | No
         run = store.start_run(suite.name, suite.text, prov["command"], prov)
         bar = Progress(len(todo), enabled=progress)
         try:
-            for row in executor.run(todo, plan.by_fingerprint, suite.protocol.cell_timeout):
+            timeout = suite.protocol.cell_timeout
+            if deadline is not None:
+                left = max(0.5, deadline - time.perf_counter())
+                timeout = left if timeout is None else min(timeout, left)
+            for row in executor.run(todo, plan.by_fingerprint, timeout):
                 store.put(row, run)
                 result.ran += 1
                 result.failed += row["status"] != OK
                 bar.step(row["status"] == OK)
-        except KeyboardInterrupt:
+                if deadline is not None and time.perf_counter() > deadline \
+                        and result.ran < len(todo):
+                    result.stopped = True
+                    break
+        except (KeyboardInterrupt, UserError):  # Ctrl-C, or a cluster lost mid-run
             result.interrupted = True
             store.finish_run(run, "interrupted")
             raise
         finally:
             bar.close()
         prov["load_average_after"] = provenance.load_average()
+        if suite.scaling is not None:  # the speedup sweep runs alone, after every cell
+            from harness.scaling import run_sweep
+
+            try:
+                sweep = run_sweep(suite, plan.datasets, plan.splits, store, run,
+                                  retry_failed=retry_failed, progress=progress, echo=echo)
+            except KeyboardInterrupt:
+                result.interrupted = True
+                store.finish_run(run, "interrupted")
+                raise
+            prov["scaling"] = sweep.provenance
         store.finish_run(run, "finished", prov)
     if write_outputs:
         result.outputs = build_outputs(folder)

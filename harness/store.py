@@ -39,8 +39,20 @@ CREATE TABLE IF NOT EXISTS cells (
 CREATE TABLE IF NOT EXISTS scaling (
     id INTEGER PRIMARY KEY AUTOINCREMENT, run INTEGER, dataset TEXT, strategy TEXT,
     family TEXT, workers INTEGER, repeat INTEGER, fit_seconds REAL, fit_cpu_seconds REAL,
-    predict_rows_per_second REAL, limits TEXT, host TEXT, finished REAL);
+    predict_rows_per_second REAL, limits TEXT, host TEXT, finished REAL, key TEXT,
+    method TEXT, task TEXT, status TEXT, message TEXT, n_train INTEGER, n_test INTEGER,
+    predict_seconds REAL, other_load REAL);
+CREATE TABLE IF NOT EXISTS scaling_plan (key TEXT PRIMARY KEY);
 """
+
+# sweep points (harness.scaling): one row per repeat; columns added after the first schema
+_SCALING_COLUMNS = ("run", "key", "dataset", "strategy", "family", "method", "task", "workers",
+                    "repeat", "status", "message", "n_train", "n_test", "fit_seconds",
+                    "fit_cpu_seconds", "predict_seconds", "predict_rows_per_second",
+                    "other_load", "limits", "host", "finished")
+_SCALING_ADDED = {"key": "TEXT", "method": "TEXT", "task": "TEXT", "status": "TEXT",
+                  "message": "TEXT", "n_train": "INTEGER", "n_test": "INTEGER",
+                  "predict_seconds": "REAL", "other_load": "REAL"}
 
 _CELL_COLUMNS = ("key", "run", "dataset", "strategy", "method", "family", "task", "repeat",
                  "fold", "fingerprint", "n_train", "n_test", "status", "message", "detail",
@@ -65,6 +77,10 @@ class Store:
             self.db.execute("PRAGMA journal_mode=WAL")
             self.db.execute("PRAGMA synchronous=NORMAL")
             self.db.executescript(_SCHEMA)
+            have = {r[1] for r in self.db.execute("PRAGMA table_info(scaling)")}
+            for name, kind in _SCALING_ADDED.items():  # stores made before these columns
+                if name not in have:
+                    self.db.execute(f"ALTER TABLE scaling ADD COLUMN {name} {kind}")
         except sqlite3.DatabaseError as exc:
             raise UserError(f"{self.path} is not a woodlot results store ({exc})") from None
         found = self.db.execute("SELECT value FROM meta WHERE key='schema'").fetchone()
@@ -149,9 +165,23 @@ class Store:
             self.db.execute(f"INSERT OR REPLACE INTO cells ({', '.join(_CELL_COLUMNS)}) "
                             f"VALUES ({', '.join('?' * len(_CELL_COLUMNS))})", params)
 
+    def set_scaling_plan(self, keys: Iterable[str]) -> None:
+        """The sweep points the latest sweep wanted (tables show these, and only these)."""
+        with self.db:
+            self.db.execute("BEGIN")
+            self.db.execute("DELETE FROM scaling_plan")
+            self.db.executemany("INSERT OR IGNORE INTO scaling_plan VALUES (?)",
+                                ((k,) for k in keys))
+
+    def scaling_keys(self, *, include_failed: bool = True) -> set[str]:
+        sql = "SELECT DISTINCT key FROM scaling WHERE key IS NOT NULL"
+        if not include_failed:
+            sql += " AND status='ok'"
+        return {r[0] for r in self.db.execute(sql)}
+
     def put_scaling(self, rows: Iterable[dict[str, Any]], run: int) -> None:
-        cols = ("run", "dataset", "strategy", "family", "workers", "repeat", "fit_seconds",
-                "fit_cpu_seconds", "predict_rows_per_second", "limits", "host", "finished")
+        """Write the rows of one sweep point (one per repeat) in one transaction."""
+        cols = _SCALING_COLUMNS
         with self.db:
             self.db.execute("BEGIN IMMEDIATE")
             for r in rows:
@@ -174,12 +204,23 @@ class Store:
         return pd.concat([frame, metrics], axis=1)
 
     def scaling_frame(self) -> pd.DataFrame:
-        """Speedup sweep points of the latest run that has any."""
-        last = self.db.execute("SELECT MAX(run) FROM scaling").fetchone()[0]
-        if last is None:
+        """Rows of the sweep points of the latest sweep plan, each point's latest measurement
+        (a point measured again replaces the earlier one)."""
+        if not self.db.execute("SELECT COUNT(*) FROM scaling_plan").fetchone()[0]:
             return pd.DataFrame()
-        return pd.read_sql_query("SELECT * FROM scaling WHERE run=? ORDER BY dataset, strategy, "
-                                 "workers, repeat", self.db, params=(last,))
+        return pd.read_sql_query(
+            "SELECT s.* FROM scaling s JOIN (SELECT key, MAX(run) AS run FROM scaling "
+            "WHERE key IN (SELECT key FROM scaling_plan) GROUP BY key) latest "
+            "ON s.key = latest.key AND s.run = latest.run ORDER BY s.id", self.db)
+
+    def run_provenance(self, runs: Iterable[int]) -> dict[int, dict[str, Any]]:
+        """Run number → its provenance, for the given runs."""
+        out = {}
+        for run in sorted(set(int(r) for r in runs)):
+            row = self.db.execute("SELECT provenance FROM runs WHERE run=?", (run,)).fetchone()
+            if row is not None:
+                out[run] = json.loads(row[0] or "{}")
+        return out
 
     def dataset_summaries(self) -> pd.DataFrame:
         rows = [json.loads(s) for (s,) in self.db.execute("SELECT summary FROM datasets")]

@@ -336,4 +336,9 @@ def _scaling(table: Any, where: str, datasets, strategies) -> Scaling:
             t[key] = tuple(t[key])
     if t.get("repeats", 3) < 1:
         raise UserError("must be at least 1", file=where, field="repeats")
+    if "noise_margin" in t:
+        if not 0 < t["noise_margin"] < 10:
+            raise UserError("expected a relative spread above 0, such as 0.15 for 15 %",
+                            file=where, field="noise_margin")
+        t["noise_margin"] = float(t["noise_margin"])
     return Scaling(**t)

@@ -9,8 +9,9 @@ from pathlib import Path
 
 import pandas as pd
 
-from harness.report import plots, tables
+from harness.report import plots, speedup, tables
 from harness.store import Store
+from harness.report import page, verdicts
 
 
 @dataclass
@@ -18,6 +19,8 @@ class Outputs:
     folder: Path
     files: list[Path] = field(default_factory=list)
     ranks: pd.DataFrame | None = None
+    speedup: pd.DataFrame | None = None  # speedup sweep summary, when the store has a sweep
+    verdict: object | None = None  # harness.verdict.Verdict, when the store has accuracy cells
 
 
 def write_text(path: Path, text: str) -> Path:
@@ -38,16 +41,21 @@ def _table(out: Outputs, name: str, frame: pd.DataFrame, md: str | None = None,
 
 
 def build_outputs(folder: str | Path) -> Outputs:
-    """Tables (CSV + Markdown), plots and provenance for the folder's latest plan."""
+    """Tables (CSV + Markdown), plots, provenance and report.html for the folder's latest plan."""
     folder = Path(folder)
     out = Outputs(folder)
     with Store(folder, create=False) as store:
         frame = store.cells_frame()
         run = store.last_run()
+        datasets = store.dataset_summaries()
+        sweep = store.scaling_frame()
+        sweep_runs = store.run_provenance(sweep["run"]) if not sweep.empty else {}
     provenance = (run or {}).get("provenance", {})
     metrics = provenance.get("metrics")
     out.files.append(write_text(folder / "provenance.json", json.dumps(provenance, indent=2)))
+    speedup.write(out, sweep, sweep_runs)
     if frame.empty:
+        out.files.append(page.write(out, frame, None, run, datasets, not sweep.empty))
         return out
     primary = tables.primary_metrics(frame, metrics)
     scores = tables.score_table(frame)
@@ -66,4 +74,6 @@ def build_outputs(folder: str | Path) -> Outputs:
         p = fn(frame, primary, folder / "plots" / f"{name}.png")
         if p is not None:
             out.files.append(p)
+    out.verdict = verdicts.write(out, frame, metrics)
+    out.files.append(page.write(out, frame, out.verdict, run, datasets, not sweep.empty))
     return out

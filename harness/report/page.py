@@ -20,6 +20,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
+from harness import provenance
 from harness.report.tables import _fmt, failures_table
 from harness.report.verdicts import (COST_LABELS, interval_text, pair_outcome, ranks_frame,
                                      scale_text, standing)
@@ -359,7 +360,7 @@ def _provenance_section(run: dict | None, frame: pd.DataFrame, folder: Path) -> 
             ("run", f"{(run or {}).get('run', '–')}: started {when((run or {}).get('started'))}, "
                     f"finished {when((run or {}).get('finished'))} ({(run or {}).get('state')})"),
             ("cells in the latest plan", len(frame)),
-            ("executor", f"{prov.get('executor', '–')}, {prov.get('jobs', '–')} jobs"),
+            ("executor", provenance.executor_text(prov)),
             ("timing", prov.get("timing")),
             ("machine", f"{prov.get('cpu_model', '?')}, {prov.get('cores', '?')} cores, "
                         f"{prov.get('platform', '?')}, host {prov.get('host', '?')}"),
