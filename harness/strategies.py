@@ -205,7 +205,7 @@ def _check_params(strategy: Strategy, task: str, where: str) -> None:
                             f"{closest(key, accepted)}", file=where, field=f"params.{key}")
     try:
         est = strategy.build(task, 0)
-        if hasattr(est, "_validate_params"):
+        if hasattr(est, "_validate_params") and hasattr(est, "_parameter_constraints"):
             est._validate_params()
     except (TypeError, ValueError) as exc:
         raise UserError(f"{path.split(':')[-1]} refuses these parameters: "
