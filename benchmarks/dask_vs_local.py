@@ -18,9 +18,9 @@ import tempfile
 import time
 from pathlib import Path
 
-from harness.dask_executor import DaskExecutor
-from harness.executors import LocalExecutor
-from harness.runner import run_suite
+from harness.execution.dask_cluster import DaskExecutor
+from harness.execution.local import LocalExecutor
+from harness.commands.run import run_suite
 
 
 def timed_run(suite: str, out: Path, executor) -> float:

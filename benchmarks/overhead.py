@@ -23,10 +23,10 @@ from pathlib import Path
 from sklearn.model_selection import cross_validate
 from threadpoolctl import threadpool_limits
 
-from harness.cells import set_threads
+from harness.execution.run_cell import set_threads
 from harness.plan import load_datasets
-from harness.protocol import splitter
-from harness.runner import run_suite
+from harness.splits import splitter
+from harness.commands.run import run_suite
 from harness.suite import load_suite
 
 
@@ -49,7 +49,7 @@ def plain_loop(suite) -> float:
 def with_measure(text: str, on: bool) -> str:
     text = re.sub(r"(?ms)^\[measure\].*?(?=^\[)", "", text)
     flag = "true" if on else "false"
-    return text + f"\n[measure]\nmemory = {flag}\nmodel_size = {flag}\nsize_curve = {flag}\n"
+    return text + f"\n[also_measure]\nmemory = {flag}\nmodel_size = {flag}\nsize_curve = {flag}\n"
 
 
 def woodlot(suite_path: Path, text: str, on: bool, folder: Path) -> float:

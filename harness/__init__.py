@@ -2,19 +2,23 @@
 
 Python API
 ----------
-run_suite(path, **options)  run a suite file; see `harness.runner.run_suite`.
+run_suite(path, **options)  run a suite file; see `harness.commands.run.run_suite`.
 load_results(folder)        the results of a folder as a DataFrame, one row per cell.
+
+Importing the package loads nothing else and changes no global state (such as matplotlib's
+backend).
 """
 
 from __future__ import annotations
 
-__version__ = "0.1.0"
+from harness.versions import WOODLOT_VERSION as __version__
 
 
 def run_suite(path, **options):
-    from harness.runner import run_suite as _run
+    """Run a suite file; see `harness.commands.run.run_suite` for the options."""
+    from harness.commands.run import run_suite as run
 
-    return _run(path, **options)
+    return run(path, **options)
 
 
 def load_results(folder, *, plan_only: bool = True):

@@ -1,13 +1,21 @@
-"""From a validated suite to loaded datasets and the list of cells to run."""
+"""From a validated suite to loaded datasets and the units of work: the cells of the accuracy
+comparison and the speedup points, each with its key."""
 
 from __future__ import annotations
 
+import socket
 from dataclasses import dataclass
 
-from harness.cells import Cell, cell_key
-from harness.datasets import Dataset, load_dataset
-from harness.protocol import Split, make_splits
-from harness.suite import Suite
+from harness import provenance
+from harness.datasets import Dataset, Split, load_dataset
+from harness.splits import make_splits
+from harness.strategies import Strategy
+from harness.suite import SpeedupSettings, Suite
+from harness.versions import estimator_distribution, result_versions
+from harness.work_units import Cell, SpeedupPoint, unit_key
+
+SPEEDUP_FORMAT = 1  # bump when the meaning of a stored speedup point changes
+WARMUP_ROWS = 500  # rows of the untimed fit that starts thread and process pools (see harness.execution.speedup_point)
 
 
 @dataclass(frozen=True)
@@ -28,12 +36,17 @@ def load_datasets(suite: Suite) -> dict[str, Dataset]:
     return {spec.name: load_dataset(spec) for spec in suite.datasets}
 
 
+def versions_for(strategy: Strategy, task: str) -> dict[str, str]:
+    """The versions a result of ``strategy`` on ``task`` depends on (`harness.versions`)."""
+    dist = estimator_distribution(strategy.estimator_path(task) or "")
+    return result_versions((dist,) if dist else ())
+
+
 def make_plan(suite: Suite, datasets: dict[str, Dataset] | None = None) -> Plan:
     """Every cell of the suite: each dataset × strategy × split, keyed for the store."""
     datasets = datasets if datasets is not None else load_datasets(suite)
-    p, m = suite.protocol, suite.measure
-    measure = {"memory": m.memory, "model_size": m.model_size, "size_curve": m.size_curve,
-               "curve_points": m.curve_points}
+    p = suite.protocol
+    extras = suite.also_measure.settings()
     cells, skipped, all_splits = [], [], {}
     for spec in suite.datasets:
         ds = datasets[spec.name]
@@ -45,11 +58,83 @@ def make_plan(suite: Suite, datasets: dict[str, Dataset] | None = None) -> Plan:
                 skipped.append((strategy.name, ds.name))
                 continue
             estimator = strategy.describe(ds.task, p.seed)
+            versions = versions_for(strategy, ds.task)
             for s in splits:
-                key = cell_key(fingerprint=ds.fingerprint, estimator=estimator, train=s.train,
-                               test=s.test, metrics=metrics, measure=measure)
+                key = unit_key(fingerprint=ds.fingerprint, estimator=estimator, train=s.train,
+                               test=s.test, versions=versions,
+                               settings={"metrics": list(metrics), "also_measure": extras,
+                                         "threads": 1})
                 cells.append(Cell(key=key, dataset=ds.name, fingerprint=ds.fingerprint,
                                   task=ds.task, strategy=strategy, repeat=s.repeat, fold=s.fold,
                                   train=s.train, test=s.test, metrics=metrics, seed=p.seed,
-                                  **measure))
+                                  **extras))
     return Plan(suite, datasets, all_splits, cells, skipped)
+
+
+def usable_cores() -> int:
+    """Cores this process may use (CPU affinity and container quotas; joblib's count)."""
+    from joblib import cpu_count
+
+    return max(1, int(cpu_count()))
+
+
+def worker_counts(requested: tuple[int, ...], cores: int) -> tuple[list[int], list[str]]:
+    """The worker counts to measure and notes on what was changed.
+
+    Default: 1, 2, 4, … up to ``cores`` (and ``cores`` itself). Counts above ``cores`` are
+    clipped to it; 1 is always measured, as the baseline of every speedup.
+    """
+    notes = []
+    if not requested:
+        counts = [1]
+        while counts[-1] * 2 <= cores:
+            counts.append(counts[-1] * 2)
+        if counts[-1] != cores:
+            counts.append(cores)
+        return counts, notes
+    above = [w for w in requested if w > cores]
+    counts = sorted({min(w, cores) for w in requested})
+    if above:
+        notes.append(f"worker count{'s' if len(above) > 1 else ''} "
+                     f"{', '.join(map(str, above))} exceed{'s' if len(above) == 1 else ''} the "
+                     f"{cores} core{'s' if cores > 1 else ''} present; clipped to {cores}")
+    if 1 not in counts:
+        counts.insert(0, 1)
+        notes.append("1 worker added: it is the baseline of every speedup")
+    return counts, notes
+
+
+def plan_speedup(plan: Plan, settings: SpeedupSettings,
+                 cores: int) -> tuple[list[SpeedupPoint], list[int], list[str]]:
+    """Every speedup point, in the order they run, plus worker counts and notes.
+
+    A point fits on the training rows of the dataset's first split. Its key adds the worker
+    count, the repeats and the machine (host, CPU model, cores) to what a cell's key holds.
+    """
+    suite = plan.suite
+    counts, notes = worker_counts(settings.workers, cores)
+    names = settings.datasets or tuple(d.name for d in suite.datasets)
+    strategies = ([suite.strategy(n) for n in settings.strategies] if settings.strategies
+                  else list(suite.strategies))
+    machine = {"speedup_format": SPEEDUP_FORMAT, "repeats": settings.repeats, "warmup_rows": WARMUP_ROWS,
+               "host": socket.gethostname(), "cpu": provenance.cpu_model(), "cores": cores}
+    points = []
+    for name in names:
+        ds = plan.datasets[name]
+        split = plan.splits[name][0]
+        for strategy in strategies:
+            if not strategy.supports(ds.task):
+                notes.append(f"strategy '{strategy.name}' has no estimator for dataset "
+                             f"'{name}'s task; left out of the speedup points")
+                continue
+            estimator = strategy.describe(ds.task, suite.protocol.seed)
+            versions = versions_for(strategy, ds.task)
+            for p in counts:
+                key = unit_key(fingerprint=ds.fingerprint, estimator=estimator,
+                               train=split.train, test=split.test, versions=versions,
+                               settings={**machine, "threads": p})
+                points.append(SpeedupPoint(key=key, dataset=name, fingerprint=ds.fingerprint,
+                                           task=ds.task, strategy=strategy, workers=p,
+                                           repeats=settings.repeats, train=split.train,
+                                           test=split.test, seed=suite.protocol.seed))
+    return points, counts, notes

@@ -7,11 +7,9 @@ import platform
 import socket
 import sys
 import time
-from importlib import metadata
 from pathlib import Path
 
-LIBRARIES = ("woodlot", "numpy", "scipy", "pandas", "scikit-learn", "openml", "threadpoolctl",
-             "matplotlib", "dask", "distributed")
+from harness.versions import installed_versions
 
 
 def cpu_model() -> str:
@@ -27,18 +25,8 @@ def cpu_model() -> str:
 def load_average() -> list[float] | None:
     try:
         return [round(x, 2) for x in os.getloadavg()]
-    except OSError:
+    except (OSError, AttributeError):  # AttributeError: Windows has no load average
         return None
-
-
-def versions() -> dict[str, str]:
-    out = {}
-    for lib in LIBRARIES:
-        try:
-            out[lib] = metadata.version(lib)
-        except metadata.PackageNotFoundError:
-            continue
-    return out
 
 
 def collect(command: str | None = None) -> dict:
@@ -50,17 +38,6 @@ def collect(command: str | None = None) -> dict:
         "cpu_model": cpu_model(),
         "cores": os.cpu_count(),
         "load_average": load_average(),
-        "libraries": versions(),
+        "libraries": installed_versions(),
         "started": time.strftime("%Y-%m-%dT%H:%M:%S%z"),
     }
-
-
-def executor_text(prov: dict) -> str:
-    """Where a run's cells ran, in words, from its provenance."""
-    name, dask = prov.get("executor", "–"), prov.get("dask")
-    if not dask:
-        return f"{name}, {prov.get('jobs', '–')} jobs"
-    hosts = dask.get("worker_hosts", {})
-    return (f"{name}: {dask.get('cluster')} at {dask.get('scheduler')}, "
-            f"{sum(hosts.values())} worker processes on "
-            + ", ".join(f"{host} ({n})" for host, n in hosts.items()))

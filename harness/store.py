@@ -2,7 +2,7 @@
 
 - One transaction per finished cell (WAL journal), so a crash, Ctrl-C or timeout loses at
   most the cells in flight and never leaves a half-written row.
-- Cells are keyed by `harness.cells.cell_key`; a run skips keys already stored.
+- Cells are keyed by `harness.work_units.unit_key`; a run skips keys already stored.
 - Each run records its plan (the keys it wanted), so tables and plots are regenerated from
   the store alone and show the latest plan, not cells of datasets that have since changed.
 """
@@ -20,7 +20,7 @@ import pandas as pd
 from harness.errors import UserError
 
 STORE_NAME = "cells.sqlite"
-SCHEMA_VERSION = 1
+SCHEMA_VERSION = 2
 
 _SCHEMA = """
 CREATE TABLE IF NOT EXISTS meta (key TEXT PRIMARY KEY, value TEXT);
@@ -36,29 +36,32 @@ CREATE TABLE IF NOT EXISTS cells (
     status TEXT, message TEXT, detail TEXT, scores TEXT, fit_seconds REAL,
     fit_cpu_seconds REAL, predict_seconds REAL, peak_memory_bytes INTEGER, model_bytes INTEGER,
     curve TEXT, threads INTEGER, timing TEXT, worker TEXT, seconds REAL, finished REAL);
-CREATE TABLE IF NOT EXISTS scaling (
-    id INTEGER PRIMARY KEY AUTOINCREMENT, run INTEGER, dataset TEXT, strategy TEXT,
-    family TEXT, workers INTEGER, repeat INTEGER, fit_seconds REAL, fit_cpu_seconds REAL,
-    predict_rows_per_second REAL, limits TEXT, host TEXT, finished REAL, key TEXT,
-    method TEXT, task TEXT, status TEXT, message TEXT, n_train INTEGER, n_test INTEGER,
-    predict_seconds REAL, other_load REAL);
-CREATE TABLE IF NOT EXISTS scaling_plan (key TEXT PRIMARY KEY);
+CREATE TABLE IF NOT EXISTS speedup (
+    id INTEGER PRIMARY KEY AUTOINCREMENT, run INTEGER, key TEXT, dataset TEXT, strategy TEXT,
+    family TEXT, method TEXT, task TEXT, workers INTEGER, repeat INTEGER, status TEXT,
+    message TEXT, n_train INTEGER, n_test INTEGER, fit_seconds REAL, fit_cpu_seconds REAL,
+    predict_seconds REAL, predict_rows_per_second REAL, other_load REAL, limits TEXT,
+    host TEXT, finished REAL);
+CREATE TABLE IF NOT EXISTS speedup_plan (key TEXT PRIMARY KEY);
 """
 
-# sweep points (harness.scaling): one row per repeat; columns added after the first schema
-_SCALING_COLUMNS = ("run", "key", "dataset", "strategy", "family", "method", "task", "workers",
+# speedup points: one row per timed repeat
+_SPEEDUP_COLUMNS = ("run", "key", "dataset", "strategy", "family", "method", "task", "workers",
                     "repeat", "status", "message", "n_train", "n_test", "fit_seconds",
                     "fit_cpu_seconds", "predict_seconds", "predict_rows_per_second",
                     "other_load", "limits", "host", "finished")
-_SCALING_ADDED = {"key": "TEXT", "method": "TEXT", "task": "TEXT", "status": "TEXT",
-                  "message": "TEXT", "n_train": "INTEGER", "n_test": "INTEGER",
-                  "predict_seconds": "REAL", "other_load": "REAL"}
 
 _CELL_COLUMNS = ("key", "run", "dataset", "strategy", "method", "family", "task", "repeat",
                  "fold", "fingerprint", "n_train", "n_test", "status", "message", "detail",
                  "scores", "fit_seconds", "fit_cpu_seconds", "predict_seconds",
                  "peak_memory_bytes", "model_bytes", "curve", "threads", "timing", "worker",
                  "seconds", "finished")
+
+
+def remove_store(folder: Path) -> None:
+    """Delete a folder's store (``--fresh``)."""
+    for suffix in ("", "-wal", "-shm"):
+        (folder / (STORE_NAME + suffix)).unlink(missing_ok=True)
 
 
 class Store:
@@ -76,19 +79,25 @@ class Store:
             self.db = sqlite3.connect(self.path, timeout=30, isolation_level=None)
             self.db.execute("PRAGMA journal_mode=WAL")
             self.db.execute("PRAGMA synchronous=NORMAL")
+            found = self._schema()
+            if found is not None and found != SCHEMA_VERSION:
+                raise UserError(f"{self.path} was written by another woodlot version (store "
+                                f"schema {found}; this one reads {SCHEMA_VERSION}); its cells "
+                                "cannot be reused: run with --fresh, or choose another --out")
             self.db.executescript(_SCHEMA)
-            have = {r[1] for r in self.db.execute("PRAGMA table_info(scaling)")}
-            for name, kind in _SCALING_ADDED.items():  # stores made before these columns
-                if name not in have:
-                    self.db.execute(f"ALTER TABLE scaling ADD COLUMN {name} {kind}")
+            if found is None:
+                self.db.execute("INSERT INTO meta VALUES ('schema', ?)", (str(SCHEMA_VERSION),))
         except sqlite3.DatabaseError as exc:
             raise UserError(f"{self.path} is not a woodlot results store ({exc})") from None
+
+    def _schema(self) -> int | None:
+        """The schema version the store was written with (None for a new, empty file)."""
+        has_meta = self.db.execute("SELECT 1 FROM sqlite_master WHERE type='table' AND "
+                                   "name='meta'").fetchone()
+        if not has_meta:
+            return None
         found = self.db.execute("SELECT value FROM meta WHERE key='schema'").fetchone()
-        if found is None:
-            self.db.execute("INSERT INTO meta VALUES ('schema', ?)", (str(SCHEMA_VERSION),))
-        elif int(found[0]) != SCHEMA_VERSION:
-            raise UserError(f"{self.path} was written by another woodlot version (schema "
-                            f"{found[0]}, this one reads {SCHEMA_VERSION})")
+        return int(found[0]) if found else None
 
     def close(self) -> None:
         self.db.close()
@@ -165,30 +174,30 @@ class Store:
             self.db.execute(f"INSERT OR REPLACE INTO cells ({', '.join(_CELL_COLUMNS)}) "
                             f"VALUES ({', '.join('?' * len(_CELL_COLUMNS))})", params)
 
-    def set_scaling_plan(self, keys: Iterable[str]) -> None:
-        """The sweep points the latest sweep wanted (tables show these, and only these)."""
+    def set_speedup_plan(self, keys: Iterable[str]) -> None:
+        """The speedup points the latest speedup run wanted (tables show these, and only these)."""
         with self.db:
             self.db.execute("BEGIN")
-            self.db.execute("DELETE FROM scaling_plan")
-            self.db.executemany("INSERT OR IGNORE INTO scaling_plan VALUES (?)",
+            self.db.execute("DELETE FROM speedup_plan")
+            self.db.executemany("INSERT OR IGNORE INTO speedup_plan VALUES (?)",
                                 ((k,) for k in keys))
 
-    def scaling_keys(self, *, include_failed: bool = True) -> set[str]:
-        sql = "SELECT DISTINCT key FROM scaling WHERE key IS NOT NULL"
+    def speedup_keys(self, *, include_failed: bool = True) -> set[str]:
+        sql = "SELECT DISTINCT key FROM speedup WHERE key IS NOT NULL"
         if not include_failed:
             sql += " AND status='ok'"
         return {r[0] for r in self.db.execute(sql)}
 
-    def put_scaling(self, rows: Iterable[dict[str, Any]], run: int) -> None:
-        """Write the rows of one sweep point (one per repeat) in one transaction."""
-        cols = _SCALING_COLUMNS
+    def put_speedup(self, rows: Iterable[dict[str, Any]], run: int) -> None:
+        """Write the rows of one speedup point (one per repeat) in one transaction."""
+        cols = _SPEEDUP_COLUMNS
         with self.db:
             self.db.execute("BEGIN IMMEDIATE")
             for r in rows:
                 v = {**r, "run": run, "finished": time.time()}
                 if not isinstance(v.get("limits"), (str, type(None))):
                     v["limits"] = json.dumps(v["limits"])
-                self.db.execute(f"INSERT INTO scaling ({', '.join(cols)}) VALUES "
+                self.db.execute(f"INSERT INTO speedup ({', '.join(cols)}) VALUES "
                                 f"({', '.join('?' * len(cols))})", [v.get(c) for c in cols])
 
     def cells_frame(self, *, plan_only: bool = True) -> pd.DataFrame:
@@ -203,14 +212,14 @@ class Store:
         frame = frame.drop(columns=["scores"])
         return pd.concat([frame, metrics], axis=1)
 
-    def scaling_frame(self) -> pd.DataFrame:
-        """Rows of the sweep points of the latest sweep plan, each point's latest measurement
+    def speedup_frame(self) -> pd.DataFrame:
+        """Rows of the speedup points of the latest speedup plan, each point's latest measurement
         (a point measured again replaces the earlier one)."""
-        if not self.db.execute("SELECT COUNT(*) FROM scaling_plan").fetchone()[0]:
+        if not self.db.execute("SELECT COUNT(*) FROM speedup_plan").fetchone()[0]:
             return pd.DataFrame()
         return pd.read_sql_query(
-            "SELECT s.* FROM scaling s JOIN (SELECT key, MAX(run) AS run FROM scaling "
-            "WHERE key IN (SELECT key FROM scaling_plan) GROUP BY key) latest "
+            "SELECT s.* FROM speedup s JOIN (SELECT key, MAX(run) AS run FROM speedup "
+            "WHERE key IN (SELECT key FROM speedup_plan) GROUP BY key) latest "
             "ON s.key = latest.key AND s.run = latest.run ORDER BY s.id", self.db)
 
     def run_provenance(self, runs: Iterable[int]) -> dict[int, dict[str, Any]]:

@@ -52,8 +52,6 @@ CATALOGUE: dict[str, Method] = {
                        {"estimator": DecisionTreeRegressor(max_depth=3)}),
 }
 
-FAMILIES = (SINGLE_TREE, BAGGING, FOREST, BOOSTING)
-
 
 @dataclass(frozen=True)
 class Strategy:
@@ -67,12 +65,16 @@ class Strategy:
     params: dict[str, Any] = field(default_factory=dict)
 
     def supports(self, task: str) -> bool:
-        return (self.classifier if task == "classification" else self.regressor) is not None
+        return self.estimator_path(task) is not None
+
+    def estimator_path(self, task: str) -> str | None:
+        """``module:Class`` of the estimator for ``task`` (None when there is none)."""
+        return self.classifier if task == "classification" else self.regressor
 
     def build(self, task: str, seed: int | None = None):
         """A fresh, unfitted estimator for ``task``; ``random_state`` is set from ``seed``
         where the estimator has one and the suite did not set it."""
-        path = self.classifier if task == "classification" else self.regressor
+        path = self.estimator_path(task)
         if path is None:
             raise ValueError(f"strategy {self.name} has no estimator for {task}")
         cls = import_path(path)
@@ -94,12 +96,6 @@ class Strategy:
         Part of the cell key, so any change of class, parameter or default recomputes."""
         est = self.build(task, seed)
         return canonical(est)
-
-    @property
-    def size_param(self) -> str | None:
-        """The parameter that sets the ensemble size, for the ensemble-size curves."""
-        return {"hist-gradient-boosting": "max_iter", "single-tree": None}.get(
-            self.method, "n_estimators")
 
 
 def canonical(est) -> str:
@@ -128,7 +124,7 @@ def import_path(path: str):
     return obj
 
 
-def _class_path(cls: type) -> str:
+def class_path(cls: type) -> str:
     """Public import path: ``sklearn.ensemble:RandomForestClassifier``, not the private module."""
     module = cls.__module__
     parts = module.split(".")
@@ -153,8 +149,8 @@ def resolve(entry: dict[str, Any], where: str) -> list[Strategy]:
             raise UserError(f"unknown method '{method}'{closest(method, CATALOGUE)}; the catalogue "
                             f"has {', '.join(CATALOGUE)}", file=where, field="method")
         m = CATALOGUE[method]
-        base = Strategy(name, entry.get("family", m.family), method, _class_path(m.classifier),
-                        _class_path(m.regressor), params)
+        base = Strategy(name, entry.get("family", m.family), method, class_path(m.classifier),
+                        class_path(m.regressor), params)
     else:
         paths = {}
         for key in ("classifier", "regressor"):

@@ -16,20 +16,23 @@ from typing import Any
 from sklearn.metrics import get_scorer_names
 
 from harness.datasets import SOURCES, DatasetSpec
+from harness.datasets.openml_source import expand_benchmark_suite
 from harness.errors import UserError, closest
+from harness.names import RULE, is_name
 from harness.strategies import Strategy, resolve
 
-RESAMPLINGS = ("cv", "holdout", "openml")
+KFOLD, HOLDOUT, PUBLISHED = "k-fold", "holdout", "published"
+SPLIT_SCHEMES = (KFOLD, HOLDOUT, PUBLISHED)
 DEFAULT_METRICS = {"classification": ("accuracy", "balanced_accuracy", "neg_log_loss"),
                    "regression": ("neg_root_mean_squared_error", "r2")}
-SECTIONS = ("suite", "protocol", "measure", "dataset", "strategy", "scaling")
+SECTIONS = ("suite", "protocol", "also_measure", "dataset", "strategy", "speedup")
 
 
 @dataclass(frozen=True)
 class Protocol:
-    """How every dataset is resampled and scored (same splits for every strategy)."""
+    """How every dataset is split and scored (the same splits for every strategy)."""
 
-    resampling: str = "cv"
+    splits: str = KFOLD
     folds: int = 5
     repeats: int = 2
     seed: int = 0
@@ -38,23 +41,24 @@ class Protocol:
     metrics: dict[str, tuple[str, ...]] = field(default_factory=lambda: dict(DEFAULT_METRICS))
     cell_timeout: float | None = 600.0  # seconds
 
-    def primary_metric(self, task: str) -> str:
-        return self.metrics[task][0]
-
 
 @dataclass(frozen=True)
-class Measure:
-    """Which measurements beyond scores and times each cell takes (all on by default)."""
+class AlsoMeasure:
+    """The ``[also_measure]`` section: what each cell measures beyond scores and times."""
 
     memory: bool = True
     model_size: bool = True
     size_curve: bool = True
     curve_points: int = 8
 
+    def settings(self) -> dict[str, Any]:
+        return {"memory": self.memory, "model_size": self.model_size,
+                "size_curve": self.size_curve, "curve_points": self.curve_points}
+
 
 @dataclass(frozen=True)
-class Scaling:
-    """The ``[scaling]`` section: a parallel speedup sweep."""
+class SpeedupSettings:
+    """The ``[speedup]`` section: which strategies are timed alone at which worker counts."""
 
     workers: tuple[int, ...] = ()
     repeats: int = 3
@@ -69,10 +73,10 @@ class Suite:
     name: str
     description: str
     protocol: Protocol
-    measure: Measure
+    also_measure: AlsoMeasure
     datasets: tuple[DatasetSpec, ...]
     strategies: tuple[Strategy, ...]
-    scaling: Scaling | None
+    speedup: SpeedupSettings | None
     text: str
 
     def strategy(self, name: str) -> Strategy:
@@ -81,14 +85,15 @@ class Suite:
 
 # key -> (python types accepted, description for messages)
 _PROTOCOL_KEYS = {
-    "resampling": (str, "text"), "folds": (int, "whole number"), "repeats": (int, "whole number"),
+    "splits": (str, "text"), "folds": (int, "whole number"), "repeats": (int, "whole number"),
     "seed": (int, "whole number"), "test_fraction": ((float, int), "number"),
     "train_rows": (int, "whole number"), "metrics": (dict, "table"),
     "cell_timeout": ((str, int, float), "duration such as \"90s\" or \"10m\""),
 }
-_MEASURE_KEYS = {"memory": (bool, "true or false"), "model_size": (bool, "true or false"),
-                 "size_curve": (bool, "true or false"), "curve_points": (int, "whole number")}
-_SCALING_KEYS = {"workers": (list, "list of whole numbers"), "repeats": (int, "whole number"),
+_ALSO_MEASURE_KEYS = {"memory": (bool, "true or false"), "model_size": (bool, "true or false"),
+                      "size_curve": (bool, "true or false"),
+                      "curve_points": (int, "whole number")}
+_SPEEDUP_KEYS = {"workers": (list, "list of whole numbers"), "repeats": (int, "whole number"),
                  "datasets": (list, "list of dataset names"),
                  "strategies": (list, "list of strategy names"),
                  "noise_margin": ((float, int), "number")}
@@ -96,7 +101,6 @@ _SUITE_KEYS = {"name": (str, "text"), "description": (str, "text")}
 _STRATEGY_KEYS = {"name": (str, "text"), "method": (str, "text"), "classifier": (str, "text"),
                   "regressor": (str, "text"), "family": (str, "text"), "params": (dict, "table"),
                   "grid": (dict, "table of lists"), "description": (str, "text")}
-_NAME = re.compile(r"^[A-Za-z0-9][A-Za-z0-9_.\-]*$")
 
 
 def parse_duration(value: Any, where: str, key: str) -> float | None:
@@ -151,7 +155,7 @@ def load_suite(path: str | Path, *, expand: bool = True) -> Suite:
 
     With ``expand`` (the default) an OpenML benchmark-suite entry (``suite = ID``) becomes one
     entry per kept task, which needs the suite's task list (cached, or from the server);
-    ``woodlot fetch`` reads the file with ``expand=False`` to download it first.
+    ``woodlot download`` reads the file with ``expand=False`` to download it first.
     """
     path = Path(path)
     data, text = read_toml(path)
@@ -161,28 +165,31 @@ def load_suite(path: str | Path, *, expand: bool = True) -> Suite:
                             f"{', '.join('[' + s + ']' for s in SECTIONS)}", file=path)
     head = _check_table(data.get("suite", {}), _SUITE_KEYS, f"{path}: [suite]", "suite")
     name = head.get("name") or path.stem
-    if not _NAME.match(name):
-        raise UserError(f"'{name}' is not a usable name (letters, digits, - _ .)",
-                        file=f"{path}: [suite]", field="name")
+    if not is_name(name):
+        raise UserError(f"'{name}' is not a usable name ({RULE})", file=f"{path}: [suite]",
+                        field="name")
     protocol = _protocol(data.get("protocol", {}), f"{path}: [protocol]")
-    measure = Measure(**_check_table(data.get("measure", {}), _MEASURE_KEYS,
-                                     f"{path}: [measure]", "measure"))
+    also = AlsoMeasure(**_check_table(data.get("also_measure", {}), _ALSO_MEASURE_KEYS,
+                                      f"{path}: [also_measure]", "also_measure"))
+    if also.curve_points < 2:
+        raise UserError(f"must be at least 2, got {also.curve_points}",
+                        file=f"{path}: [also_measure]", field="curve_points")
     datasets = _datasets(data.get("dataset", []), path, expand)
     strategies = _strategies(data.get("strategy", []), path)
-    scaling = None
-    if "scaling" in data:
-        scaling = _scaling(data["scaling"], f"{path}: [scaling]", datasets, strategies)
+    speedup = None
+    if "speedup" in data:
+        speedup = _speedup(data["speedup"], f"{path}: [speedup]", datasets, strategies)
     return Suite(path=path, name=name, description=head.get("description", ""),
-                 protocol=protocol, measure=measure, datasets=tuple(datasets),
-                 strategies=tuple(strategies), scaling=scaling, text=text)
+                 protocol=protocol, also_measure=also, datasets=tuple(datasets),
+                 strategies=tuple(strategies), speedup=speedup, text=text)
 
 
 def _protocol(table: Any, where: str) -> Protocol:
     t = dict(_check_table(table, _PROTOCOL_KEYS, where, "protocol"))
-    if t.get("resampling", "cv") not in RESAMPLINGS:
-        raise UserError(f"unknown resampling '{t['resampling']}'"
-                        f"{closest(t['resampling'], RESAMPLINGS)}; use one of "
-                        f"{', '.join(RESAMPLINGS)}", file=where, field="resampling")
+    if t.get("splits", KFOLD) not in SPLIT_SCHEMES:
+        raise UserError(f"unknown split scheme '{t['splits']}'"
+                        f"{closest(t['splits'], SPLIT_SCHEMES)}; use one of "
+                        f"{', '.join(SPLIT_SCHEMES)}", file=where, field="splits")
     for key, low in (("folds", 2), ("repeats", 1), ("train_rows", 2)):
         if key in t and t[key] < low:
             raise UserError(f"must be at least {low}, got {t[key]}", file=where, field=key)
@@ -191,17 +198,17 @@ def _protocol(table: Any, where: str) -> Protocol:
             raise UserError(f"must be between 0 and 1, got {t['test_fraction']}", file=where,
                             field="test_fraction")
         t["test_fraction"] = float(t["test_fraction"])
-    resampling = t.get("resampling", "cv")
-    if resampling == "holdout":
+    scheme = t.get("splits", KFOLD)
+    if scheme == HOLDOUT:
         if ("test_fraction" in t) == ("train_rows" in t):
             raise UserError("holdout needs exactly one of 'test_fraction' or 'train_rows'",
-                            file=where, field="resampling")
+                            file=where, field="splits")
         if "folds" in t:
             raise UserError("holdout has no folds; use 'repeats' for several random splits",
                             file=where, field="folds")
     elif "test_fraction" in t or "train_rows" in t:
         key = "test_fraction" if "test_fraction" in t else "train_rows"
-        raise UserError(f"'{key}' applies to resampling = \"holdout\" only", file=where, field=key)
+        raise UserError(f"'{key}' applies to splits = \"holdout\" only", file=where, field=key)
     metrics = dict(DEFAULT_METRICS)
     if "metrics" in t:
         known = set(get_scorer_names())
@@ -225,21 +232,26 @@ def _protocol(table: Any, where: str) -> Protocol:
     return Protocol(**t)
 
 
+def _entry_name(entry: Any, path: Path, kind: str, i: int) -> tuple[str, str]:
+    """(name, message prefix) of the ``i``-th ``[[kind]]`` entry, checked."""
+    where = f"{path}: {kind} entry {i}"
+    if not isinstance(entry, dict):
+        raise UserError(f"each [[{kind}]] must be a table", file=where)
+    name = entry.get("name")
+    if not isinstance(name, str) or not name:
+        raise UserError(f"every {kind} needs a 'name'", file=where, field="name")
+    where = f"{path}: {kind} '{name}' (entry {i})"
+    if not is_name(name):
+        raise UserError(f"'{name}' is not a usable name ({RULE})", file=where, field="name")
+    return name, where
+
+
 def _datasets(entries: Any, path: Path, expand: bool) -> list[DatasetSpec]:
     if not isinstance(entries, list) or not entries:
         raise UserError("a suite needs at least one [[dataset]] entry", file=path)
     specs, seen = [], set()
     for i, entry in enumerate(entries, start=1):
-        where = f"{path}: dataset entry {i}"
-        if not isinstance(entry, dict):
-            raise UserError("each [[dataset]] must be a table", file=where)
-        name = entry.get("name")
-        if not isinstance(name, str) or not name:
-            raise UserError("every dataset needs a 'name'", file=where, field="name")
-        where = f"{path}: dataset '{name}' (entry {i})"
-        if not _NAME.match(name):
-            raise UserError(f"'{name}' is not a usable name (letters, digits, - _ .)",
-                            file=where, field="name")
+        name, where = _entry_name(entry, path, "dataset", i)
         if name in seen:
             raise UserError(f"the name '{name}' is used by an earlier dataset", file=where,
                             field="name")
@@ -272,8 +284,6 @@ def _datasets(entries: Any, path: Path, expand: bool) -> list[DatasetSpec]:
         if src.check is not None:
             src.check(spec)
         if expand and source == "openml" and "suite" in options:
-            from harness.datasets.openml_source import expand_benchmark_suite
-
             for member in expand_benchmark_suite(spec):
                 if member.name in seen:
                     raise UserError(f"the expanded name '{member.name}' is used by an earlier "
@@ -290,16 +300,7 @@ def _strategies(entries: Any, path: Path) -> list[Strategy]:
         raise UserError("a suite needs at least one [[strategy]] entry", file=path)
     out, seen = [], set()
     for i, entry in enumerate(entries, start=1):
-        where = f"{path}: strategy entry {i}"
-        if not isinstance(entry, dict):
-            raise UserError("each [[strategy]] must be a table", file=where)
-        name = entry.get("name")
-        if not isinstance(name, str) or not name:
-            raise UserError("every strategy needs a 'name'", file=where, field="name")
-        where = f"{path}: strategy '{name}' (entry {i})"
-        if not _NAME.match(name):
-            raise UserError(f"'{name}' is not a usable name (letters, digits, - _ .)",
-                            file=where, field="name")
+        _, where = _entry_name(entry, path, "strategy", i)
         _check_table(entry, _STRATEGY_KEYS, where, "strategy")
         if "method" in entry and ("classifier" in entry or "regressor" in entry):
             raise UserError("give 'method' or 'classifier'/'regressor', not both", file=where,
@@ -317,8 +318,8 @@ def _strategies(entries: Any, path: Path) -> list[Strategy]:
     return out
 
 
-def _scaling(table: Any, where: str, datasets, strategies) -> Scaling:
-    t = dict(_check_table(table, _SCALING_KEYS, where, "scaling"))
+def _speedup(table: Any, where: str, datasets, strategies) -> SpeedupSettings:
+    t = dict(_check_table(table, _SPEEDUP_KEYS, where, "speedup"))
     if "workers" in t:
         if not t["workers"] or not all(isinstance(w, int) and not isinstance(w, bool) and w >= 1
                                        for w in t["workers"]):
@@ -341,4 +342,4 @@ def _scaling(table: Any, where: str, datasets, strategies) -> Scaling:
             raise UserError("expected a relative spread above 0, such as 0.15 for 15 %",
                             file=where, field="noise_margin")
         t["noise_margin"] = float(t["noise_margin"])
-    return Scaling(**t)
+    return SpeedupSettings(**t)

@@ -11,7 +11,7 @@ import pandas as pd
 import pytest
 
 from harness import load_results, run_suite
-from harness.add import add_file, default_name
+from harness.commands.add import add_file, default_name
 from harness.cli import main
 from harness.datasets import load_dataset
 from harness.suite import load_suite
@@ -268,7 +268,7 @@ LAYOUTS = {
     "interleaved": "[[dataset]]\nname = \"wine\"\nfrom = \"sklearn\"\nload = \"load_wine\"\n"
                    "[[strategy]]\nname = \"tree\"\nmethod = \"single-tree\"\n"
                    "[[dataset]]\nname = \"iris\"\nfrom = \"sklearn\"\nload = \"load_iris\"\n"
-                   "# trailing comment\n[scaling]\nworkers = [1, 2]\n",
+                   "# trailing comment\n[speedup]\nworkers = [1, 2]\n",
     "crlf": SUITE.replace("\n", "\r\n"),
 }
 

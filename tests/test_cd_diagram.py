@@ -5,13 +5,12 @@ from __future__ import annotations
 import struct
 from itertools import combinations
 
-import matplotlib.pyplot as plt
 import numpy as np
 import pytest
 from matplotlib.image import imread
 
-from harness.report.cd_diagram import cd_figure, draw_cd_diagram
-from harness.stats import nemenyi_cd, nemenyi_groups
+from harness.report.cd_diagram import cd_figure
+from harness.analysis.stats import nemenyi_cd, nemenyi_groups
 
 TITLE = "Critical difference (Nemenyi, α = 0.05)"
 TEN = {
@@ -21,6 +20,12 @@ TEN = {
     "hist-gradient-boosting[max_depth=None]": 5.70, "adaboost[n_estimators=200]": 3.50,
     "random-forest[max_depth=8]": 3.75, "bagging[max_samples=0.5]": 3.45,
 }
+
+
+def draw_cd_diagram(ranks, cd, groups, title, path):
+    """The diagram saved as a PNG, as the report writer saves it."""
+    cd_figure(ranks, cd, groups, title).savefig(path, dpi=150, format="png")
+    return str(path)
 
 
 def png_size(path) -> tuple[int, int]:
@@ -72,38 +77,32 @@ def test_long_names_widen_the_figure(tmp_path):
 def test_no_text_overlaps_and_everything_fits(cd):
     groups = nemenyi_groups(TEN, cd if cd is not None else 2.0)
     fig = cd_figure(TEN, cd, groups, TITLE)
-    try:
-        renderer = fig.canvas.get_renderer()
-        ax = fig.axes[0]
-        texts = [t for t in ax.texts]
-        boxes = [t.get_window_extent(renderer) for t in texts]
-        canvas = fig.bbox
-        for t, b in zip(texts, boxes):  # nothing is cut off
-            assert b.x0 >= canvas.x0 - 1 and b.x1 <= canvas.x1 + 1, t.get_text()
-            assert b.y0 >= canvas.y0 - 1 and b.y1 <= canvas.y1 + 1, t.get_text()
-        for (t, b), (u, c) in combinations(zip(texts, boxes), 2):
-            assert not b.overlaps(c), (t.get_text(), u.get_text())
-        labels = [t for t in texts if any(n in t.get_text() for n in TEN)]
-        assert len(labels) == 10
-        # bars (thick lines) stay above every label
-        bars = [ln for ln in ax.lines if ln.get_linewidth() >= 3]
-        assert len(bars) == len(groups)
-        label_top = max(t.get_window_extent(renderer).y1 for t in labels)
-        for ln in bars:
-            y = ax.transData.transform(np.column_stack(ln.get_data()))[:, 1]
-            assert y.min() > label_top
-    finally:
-        plt.close(fig)
+    renderer = fig.canvas.get_renderer()
+    ax = fig.axes[0]
+    texts = [t for t in ax.texts]
+    boxes = [t.get_window_extent(renderer) for t in texts]
+    canvas = fig.bbox
+    for t, b in zip(texts, boxes):  # nothing is cut off
+        assert b.x0 >= canvas.x0 - 1 and b.x1 <= canvas.x1 + 1, t.get_text()
+        assert b.y0 >= canvas.y0 - 1 and b.y1 <= canvas.y1 + 1, t.get_text()
+    for (t, b), (u, c) in combinations(zip(texts, boxes), 2):
+        assert not b.overlaps(c), (t.get_text(), u.get_text())
+    labels = [t for t in texts if any(n in t.get_text() for n in TEN)]
+    assert len(labels) == 10
+    # bars (thick lines) stay above every label
+    bars = [ln for ln in ax.lines if ln.get_linewidth() >= 3]
+    assert len(bars) == len(groups)
+    label_top = max(t.get_window_extent(renderer).y1 for t in labels)
+    for ln in bars:
+        y = ax.transData.transform(np.column_stack(ln.get_data()))[:, 1]
+        assert y.min() > label_top
 
 
 def test_rank_labels_and_sides():
     fig = cd_figure({"best": 1.2, "mid": 2.5, "worst": 3.8}, None, [], "t")
-    try:
-        texts = {t.get_text(): t for t in fig.axes[0].texts}
-        assert "best  1.20" in texts and "mid  2.50" in texts and "3.80  worst" in texts
-        assert texts["best  1.20"].get_ha() == "right" and texts["3.80  worst"].get_ha() == "left"
-    finally:
-        plt.close(fig)
+    texts = {t.get_text(): t for t in fig.axes[0].texts}
+    assert "best  1.20" in texts and "mid  2.50" in texts and "3.80  worst" in texts
+    assert texts["best  1.20"].get_ha() == "right" and texts["3.80  worst"].get_ha() == "left"
 
 
 def test_unknown_group_member_is_an_error(tmp_path):

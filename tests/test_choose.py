@@ -15,7 +15,9 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from harness.choose import choose, plan_budget
+from harness.analysis.recommendation import plan_budget
+from harness.commands.choose import FOLDS, MAX_REPEATS, choose
+from harness.report.recommendation import warnings
 from harness.cli import main
 
 
@@ -69,9 +71,9 @@ def test_pure_noise_everything_tied_and_the_cheapest_recommended(tmp_path):
     assert len(rec.tied) >= len(kept) - 2
     group = [r for r in rec.strategies if r["tied_with_best"]]
     cheapest = min(group, key=lambda r: r["fit_seconds"])["strategy"]
-    assert rec.cheapest_to_train["strategy"] == cheapest
+    assert rec.cheapest_to_train == cheapest
     assert any("Recommendation: " + cheapest in s for s in rec.sentences)
-    assert any("small" in w for w in rec.warnings)  # 250 rows: the small-data warning
+    assert any("small" in w for w in warnings(rec))  # 250 rows: the small-data warning
 
 
 def test_budget_far_too_small_is_a_clear_message(tmp_path, capsys):
@@ -96,12 +98,12 @@ def test_plan_prefers_repeats_then_drops_the_dearest_but_keeps_each_family():
     costs = {"tree": 0.1, "forest": 1.0, "bag": 2.0, "gb": 4.0, "hgb": 1.5}
     families = {"tree": "single tree", "forest": "forest", "bag": "bagging", "gb": "boosting",
                 "hgb": "boosting"}
-    repeats, kept, est = plan_budget(costs, 1000, 2, families)
+    repeats, kept, est = plan_budget(costs, 1000, 2, FOLDS, MAX_REPEATS, families)
     assert repeats == 3 and sorted(kept) == sorted(costs)
     # 14 cells left per strategy at 3 repeats; 8.6 s per round over 2 jobs ≈ 69 s with margin
-    repeats, kept, est = plan_budget(costs, 30, 2, families)
+    repeats, kept, est = plan_budget(costs, 30, 2, FOLDS, MAX_REPEATS, families)
     assert repeats == 1 and sorted(kept) == sorted(costs) and est <= 30
-    repeats, kept, _ = plan_budget(costs, 15, 2, families)
+    repeats, kept, _ = plan_budget(costs, 15, 2, FOLDS, MAX_REPEATS, families)
     assert "gb" not in kept and "hgb" in kept  # the dearer booster goes, boosting stays
-    repeats, kept, _ = plan_budget(costs, 0.01, 2, families)
+    repeats, kept, _ = plan_budget(costs, 0.01, 2, FOLDS, MAX_REPEATS, families)
     assert repeats == 0 and kept == []

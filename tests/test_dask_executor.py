@@ -16,12 +16,13 @@ import psutil
 import pytest
 from distributed import Client, LocalCluster
 
-import harness.dask_executor as dask_executor
+import harness.execution.dask_cluster as dask_executor
 from harness.cli import main
-from harness.dask_executor import DaskExecutor
+from harness.execution.executor import Executor
+from harness.execution.dask_cluster import DaskExecutor
 from harness.errors import UserError
-from harness.executors import LocalExecutor
-from harness.runner import run_suite
+from harness.execution.local import LocalExecutor
+from harness.commands.run import run_suite
 from harness.store import Store
 from tests.conftest import SMALL_SUITE
 
@@ -50,7 +51,7 @@ def cluster(dask_cluster):
     return cluster, client
 
 
-class Recorder:
+class Recorder(Executor):
     """Wraps an executor: keeps the key of every row it yields, calls ``after(n)`` once the
     runner has stored row n (which may raise, as Ctrl-C would)."""
 
@@ -58,11 +59,14 @@ class Recorder:
         self.inner, self.after, self.keys = inner, after, []
         self.name = inner.name
 
-    def connect(self) -> None:
-        self.inner.connect()
+    def open(self) -> None:
+        self.inner.open()
 
     def describe(self) -> dict:
         return self.inner.describe()
+
+    def close(self) -> None:
+        self.inner.close()
 
     def run(self, cells, datasets, timeout):
         rows = self.inner.run(cells, datasets, timeout)
@@ -218,7 +222,7 @@ def test_cell_that_kills_every_worker_becomes_an_error_row(cluster, write_suite,
         name = "deadly"
 
         [protocol]
-        resampling = "holdout"
+        splits = "holdout"
         repeats = 1
         test_fraction = 0.3
         seed = 3

@@ -28,7 +28,7 @@ def suite_file(seeded, body: str):
 
 TASK_SUITE = """
 [protocol]
-resampling = "openml"
+splits = "published"
 
 [[dataset]]
 name = "orchard"
@@ -68,7 +68,7 @@ def test_openml_resampling_needs_task_entries(seeded, tmp_path, capsys):
 
 
 def test_uncached_dataset_offline_stops_before_anything_is_written(seeded, tmp_path, capsys):
-    body = TASK_SUITE.replace('resampling = "openml"', "folds = 3\nrepeats = 1") \
+    body = TASK_SUITE.replace('splits = "published"', "folds = 3\nrepeats = 1") \
         .replace("task = 77\nexpect = { rows = 60 }", "dataset = 31")
     path = suite_file(seeded, body)
     assert main(["run", str(path), "--out", str(tmp_path / "out"), "--quiet"]) == 2
@@ -88,7 +88,7 @@ def test_fetch_with_everything_cached_downloads_nothing(seeded, capsys):
 
 
 def test_benchmark_suite_entry_expands_into_its_tasks(seeded):
-    body = TASK_SUITE.replace('resampling = "openml"', "folds = 2\nrepeats = 1").replace(
+    body = TASK_SUITE.replace('splits = "published"', "folds = 2\nrepeats = 1").replace(
         'name = "orchard"\nfrom = "openml"\ntask = 77\nexpect = { rows = 60 }',
         'name = "bench"\nfrom = "openml"\nsuite = 9001\nmax_rows = 100')
     path = suite_file(seeded, body)

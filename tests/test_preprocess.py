@@ -7,8 +7,8 @@ import pandas as pd
 
 from harness import load_results, run_suite
 from harness.datasets import finish
-from harness.preprocess import with_preprocessing
-from harness.strategies import CATALOGUE, Strategy, _class_path
+from harness.execution.preprocess import with_preprocessing
+from harness.strategies import CATALOGUE, Strategy, class_path
 
 
 def mixed_table(n=240, seed=0):
@@ -27,7 +27,7 @@ def test_imputer_and_encoder_are_fitted_on_training_rows_only():
     ds = finish("m", t.drop(columns="y"), t.y, source="test", where="test")
     assert ds.categorical == ("soil",)
     est = Strategy("rf", "forest", "random-forest",
-                   _class_path(CATALOGUE["random-forest"].classifier), None).build(
+                   class_path(CATALOGUE["random-forest"].classifier), None).build(
         "classification", 0)
     model = with_preprocessing(est, ds)
     train = np.arange(120)
@@ -44,7 +44,7 @@ def test_unseen_category_in_test_rows_is_handled(tmp_path):
     t.to_csv(tmp_path / "mixed.csv", index=False)
     (tmp_path / "s.toml").write_text("""
 [protocol]
-resampling = "holdout"
+splits = "holdout"
 train_rows = 200
 repeats = 1
 [[dataset]]

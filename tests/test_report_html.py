@@ -23,7 +23,7 @@ from tests.conftest import SMALL_SUITE
 ROOT = Path(__file__).resolve().parents[1]
 
 SWEEP = """
-[scaling]
+[speedup]
 workers = [1, 2]
 repeats = 1
 datasets = ["wine"]

@@ -10,7 +10,7 @@ import pandas as pd
 import pytest
 from scipy import stats
 
-from harness.stats import (average_ranks, corrected_interval, corrected_ttest, friedman, holm,
+from harness.analysis.stats import (average_ranks, corrected_interval, corrected_ttest, friedman, holm,
                            nemenyi_cd, nemenyi_critical_value, nemenyi_groups, pareto_front,
                            per_dataset_summary, wilcoxon_holm, win_tie_loss)
 

@@ -147,7 +147,7 @@ def test_rows_of_different_lengths(write_suite, capsys, tmp_path):
 
 
 def test_holdout_needs_one_size(write_suite, capsys, tmp_path):
-    body = '[protocol]\nresampling = "holdout"\nrepeats = 2\n' + WINE + TREE
+    body = '[protocol]\nsplits = "holdout"\nrepeats = 2\n' + WINE + TREE
     check_bad(write_suite, capsys, tmp_path, body, "[protocol]", "exactly one of")
 
 

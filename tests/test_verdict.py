@@ -11,8 +11,9 @@ import pytest
 from scipy import stats as st
 
 from harness import load_results
-from harness.report.tables import rank_table
-from harness.verdict import complete_block, tied_runs, verdict
+from harness.report import words
+from scipy.stats import rankdata
+from harness.analysis.verdict import complete_block, tied_runs, verdict
 from tests.conftest import SMALL_SUITE
 
 # Six classification datasets, a random forest against a constant prediction (the majority
@@ -135,7 +136,7 @@ def test_one_strategy_dominating_is_found_by_every_test(dominance):
     assert (row["wins"], row["ties"], row["losses"]) == (6, 0, 0)
     assert v.scale == "raw" and not v.powerless
     assert v.nemenyi_groups == [] and v.wilcoxon_groups == []
-    text = " ".join(v.summary())
+    text = " ".join(words.summary(v))
     assert "forest has the best average rank (1.00 over 6 datasets" in text
     assert "better than constant (p = 0.031)" in text
     assert "Friedman test rejects" in text
@@ -182,12 +183,16 @@ def test_missing_strategies_are_left_out_and_named(small):
     assert v.primary == {"wine": "accuracy", "friedman": "neg_root_mean_squared_error"}
     assert v.scale == "noise"
     # two datasets, three pairs: Wilcoxon–Holm cannot reject, and the verdict says so
-    assert v.powerless and "With 2 datasets" in v.powerless
+    assert v.powerless and "With 2 datasets" in " ".join(words.notes(v))
     assert not v.across["wilcoxon_differs"].any()
-    assert any("left out" in s for s in v.summary())
-    # same average ranks as the descriptive rank table where both see the same strategies
-    ref = rank_table(frame[frame.strategy.isin(["tree", "forest", "gb"])]).set_index("strategy")
-    assert v.ranks.to_dict() == pytest.approx(ref["mean_rank"].to_dict())
+    assert any("left out" in s for s in words.summary(v))
+    # the average ranks equal SciPy's rankdata of the per-dataset means (higher is better)
+    kept = frame[frame.strategy.isin(["tree", "forest", "gb"]) & (frame.status == "ok")]
+    ref = []
+    for ds, metric in v.primary.items():
+        means = kept[kept.dataset == ds].groupby("strategy")[metric].mean()
+        ref.append(pd.Series(rankdata(-means.to_numpy()), index=means.index))
+    assert v.ranks.to_dict() == pytest.approx(pd.concat(ref, axis=1).mean(axis=1).to_dict())
 
 
 def test_complete_block_drops_what_loses_fewest_scores():
@@ -228,7 +233,8 @@ def _frame(points: dict[str, tuple[float, float, float]], datasets=("d1", "d2"))
         for name, (acc, fit, pred) in points.items():
             for i in range(4):
                 rows.append({"key": f"{ds}{name}{i}", "dataset": ds, "strategy": name,
-                             "family": "forest", "task": "classification", "repeat": i // 2,
+                             "family": "forest", "method": "random-forest",
+                             "task": "classification", "repeat": i // 2,
                              "fold": i % 2, "n_train": 100, "n_test": 100, "status": "ok",
                              "fit_seconds": fit, "predict_seconds": pred,
                              "accuracy": acc + 0.01 * (i % 2), "curve": None})
@@ -255,23 +261,23 @@ def test_pareto_names_the_dominated_and_who_dominates_them():
     assert allp.loc["slow-good", "dominated_by"] == "good"
     assert allp.loc["fast", "on_front"] and not allp.loc["bad", "on_front"]
     assert v.costs.set_index("strategy").loc["good", "fit_seconds"] == pytest.approx(1.0)
-    text = " ".join(v.summary())
+    text = " ".join(words.summary(v))
     assert "slow-good (by good)" in text
 
 
 def test_outputs_written_by_the_run(dominance):
     result, _ = dominance
     folder = result.folder
-    for name in ("intervals", "pairs", "pareto", "verdict_ranks", "verdict_tests",
-                 "verdict_pairs"):
+    for name in ("intervals", "pairs", "pareto", "ranks", "tests", "pairs_across"):
         for ext in ("csv", "md"):
             assert (folder / "tables" / f"{name}.{ext}").stat().st_size > 0, name
-    pairs = pd.read_csv(folder / "tables" / "verdict_pairs.csv")
+    pairs = pd.read_csv(folder / "tables" / "pairs_across.csv")
     assert pairs.loc[0, "p"] == pytest.approx(0.03125)
     md = (folder / "tables" / "intervals.md").read_text()
-    assert "## iris (accuracy, higher is better)" in md and "worse than best" in md
-    tests_md = (folder / "tables" / "verdict_tests.md").read_text()
-    assert "Iman–Davenport F" in tests_md and "forest has the best average rank" in tests_md
+    assert "## iris: accuracy (higher is better)" in md and "worse than best" in md
+    tests_md = (folder / "tables" / "tests.md").read_text()
+    assert "Iman–Davenport F" in tests_md
+    assert "forest has the best average rank" in (folder / "summary.md").read_text()
     for name in ("critical_difference", "wilcoxon_holm_groups", "rank_vs_fit_time",
                  "score_vs_fit_time"):
         data = (folder / "plots" / f"{name}.png").read_bytes()

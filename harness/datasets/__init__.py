@@ -10,7 +10,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 from typing import Callable
 
-from harness.datasets.base import (CLASSIFICATION, REGRESSION, TASKS, Dataset, PredefinedSplit,
+from harness.datasets.base import (CLASSIFICATION, REGRESSION, TASKS, Dataset, Split,
                                    fingerprint, finish, infer_task)
 from harness.datasets.bundled import load_generator, load_sklearn
 from harness.datasets.files import load_file
@@ -27,7 +27,6 @@ class Source:
     required: tuple[str, ...]
     optional: tuple[str, ...]
     load: Callable[[DatasetSpec], Dataset]
-    network: bool = False
     check: Callable[[DatasetSpec], None] | None = None  # extra checks on the entry's text
 
     @property
@@ -39,7 +38,7 @@ SOURCES: dict[str, Source] = {
     "sklearn": Source(required=("load",), optional=(), load=load_sklearn),
     "generator": Source(required=("make",), optional=("params",), load=load_generator),
     "file": Source(required=("path", "target"), optional=("delimiter", "decimal"), load=load_file),
-    "openml": Source(required=(), optional=("dataset", "task", "suite", "target", "expect", "max_rows", "max_columns", "max_classes"), load=load_openml, network=True, check=check_openml_entry),
+    "openml": Source(required=(), optional=("dataset", "task", "suite", "target", "expect", "max_rows", "max_columns", "max_classes"), load=load_openml, check=check_openml_entry),
 }
 
 
@@ -49,5 +48,5 @@ def load_dataset(spec: DatasetSpec) -> Dataset:
 
 
 __all__ = ["CLASSIFICATION", "REGRESSION", "TASKS", "COMMON_KEYS", "Dataset", "DatasetSpec",
-           "PredefinedSplit", "SOURCES", "Source", "fingerprint", "finish", "infer_task",
+           "Split", "SOURCES", "Source", "fingerprint", "finish", "infer_task",
            "load_dataset"]

@@ -17,8 +17,9 @@ TASKS = (CLASSIFICATION, REGRESSION)
 
 
 @dataclass(frozen=True)
-class PredefinedSplit:
-    """A train/test split fixed by the data's publisher (for instance an OpenML task)."""
+class Split:
+    """One train/test split: row positions, with the repeat and fold it belongs to. Made by
+    the suite's protocol (`harness.splits`) or fixed by the data's publisher (an OpenML task)."""
 
     repeat: int
     fold: int
@@ -51,7 +52,7 @@ class Dataset:
     categorical: tuple[str, ...]
     fingerprint: str
     source: str
-    splits: tuple[PredefinedSplit, ...] | None = None
+    splits: tuple[Split, ...] | None = None
     meta: dict[str, Any] = field(default_factory=dict)
 
     @property
@@ -82,7 +83,7 @@ class Dataset:
 
 
 def fingerprint(X: pd.DataFrame, y: pd.Series, task: str, categorical: tuple[str, ...],
-                splits: tuple[PredefinedSplit, ...] | None = None) -> str:
+                splits: tuple[Split, ...] | None = None) -> str:
     """SHA-256 of the content: column names, dtypes, every value, the target, task and splits."""
     h = hashlib.sha256()
     h.update(repr((list(map(str, X.columns)), [str(t) for t in X.dtypes], task,

@@ -6,7 +6,7 @@ Three kinds of ``from = "openml"`` entry, exactly one of:
   ``target = "column"`` names another; ``task = "classification"|"regression"`` may override
   the learning type (otherwise: nominal target → classification, numeric → regression).
 * ``task = ID``: a supervised classification or regression task: its dataset, its target and
-  its official train/test splits (kept as `PredefinedSplit` objects, repeat by fold).
+  its official train/test splits (kept as `Split` objects, repeat by fold).
 * ``suite = ID`` or ``suite = "alias"``: a benchmark suite, expanded by
   :func:`expand_benchmark_suite` into one ``task = ID`` entry per kept task, optionally
   filtered with ``max_rows``, ``max_columns`` and ``max_classes``.
@@ -46,7 +46,7 @@ from typing import Any, Callable, Iterator
 import numpy as np
 import pandas as pd
 
-from harness.datasets.base import (CLASSIFICATION, REGRESSION, TASKS, Dataset, PredefinedSplit,
+from harness.datasets.base import (CLASSIFICATION, REGRESSION, TASKS, Dataset, Split,
                                    finish)
 from harness.datasets.spec import DatasetSpec
 from harness.errors import UserError, closest
@@ -624,7 +624,7 @@ def _task_splits(spec: DatasetSpec, task, n_rows: int, *, purpose: str):
             if np.intersect1d(train, test).size:
                 raise UserError(f"{what}: repeat {repeat} fold {fold} uses some rows for both "
                                 "training and testing", file=spec.where, field="task")
-            out.append(PredefinedSplit(repeat=int(repeat), fold=int(fold), train=train,
+            out.append(Split(repeat=int(repeat), fold=int(fold), train=train,
                                        test=test))
     return tuple(out)
 

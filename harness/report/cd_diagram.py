@@ -11,17 +11,14 @@ long names never run into the axis.
 
 from __future__ import annotations
 
-import os
 from collections.abc import Iterable, Mapping
 
-import matplotlib
+from matplotlib.backends.backend_agg import FigureCanvasAgg
+from matplotlib.figure import Figure
 
-matplotlib.use("Agg")
+from harness.report.style import plain
 
-import matplotlib.pyplot as plt  # noqa: E402
-from matplotlib.figure import Figure  # noqa: E402
-
-__all__ = ["cd_figure", "draw_cd_diagram"]
+__all__ = ["cd_figure"]
 
 _FONT = 10          # label font size, points
 _ROW = 0.26         # vertical distance between label rows, inches
@@ -54,14 +51,18 @@ def _pack(bars: list[tuple[float, float]], gap: float = 0.15) -> list[int]:
 
 
 def _label(name: str, rank: float, left: bool) -> str:
-    return f"{name}  {rank:.2f}" if left else f"{rank:.2f}  {name}"
+    return f"{plain(name)}  {rank:.2f}" if left else f"{rank:.2f}  {plain(name)}"
 
 
 def cd_figure(avg_ranks: Mapping[str, float], cd: float | None,
               groups: Iterable[Iterable[str]], title: str) -> Figure:
-    """Build the critical difference diagram as a figure; arguments as :func:`draw_cd_diagram`.
+    """The critical difference diagram as a figure (no pyplot state; the caller saves it).
 
-    The caller owns the figure and should close it with ``matplotlib.pyplot.close``.
+    ``avg_ranks``: strategy → average rank (1 = best). ``cd``: the critical difference,
+    drawn as a scale bar above the axis, or None (groups from pairwise tests). ``groups``:
+    sets of strategies not told apart; each with two or more members becomes a thick bar from
+    its best to its worst average rank (unknown names raise ValueError). ``title``: the
+    figure's title.
     """
     ranks = {str(k): float(v) for k, v in dict(avg_ranks).items()}
     if not ranks:
@@ -84,105 +85,66 @@ def cd_figure(avg_ranks: Mapping[str, float], cd: float | None,
     right = order[n_left:][::-1]            # worst first, for the same reason
     hi = max(k, 2, int(max(ranks.values()) + 0.999))  # axis end (ranks lie in 1 … k)
 
-    fig = plt.figure()
-    try:
-        label_w = max([_text_width(fig, _label(n, ranks[n], True), _FONT) for n in order])
-        axis_w = max(3.5, 0.55 * (hi - 1))
-        margin = label_w + _PAD + 0.35
-        title_w = _text_width(fig, title, _FONT + 2) + 0.4
-        if axis_w + 2 * margin < title_w:  # a long title widens the axis, never gets cut off
-            axis_w = title_w - 2 * margin
-        width = axis_w + 2 * margin
+    fig = Figure()
+    FigureCanvasAgg(fig)  # measuring label widths needs a renderer; no global state touched
+    label_w = max([_text_width(fig, _label(n, ranks[n], True), _FONT) for n in order])
+    axis_w = max(3.5, 0.55 * (hi - 1))
+    margin = label_w + _PAD + 0.35
+    title_w = _text_width(fig, title, _FONT + 2) + 0.4
+    if axis_w + 2 * margin < title_w:  # a long title widens the axis, never gets cut off
+        axis_w = title_w - 2 * margin
+    width = axis_w + 2 * margin
 
-        y_title = 0.30
-        y_cd = 0.85
-        y_axis = y_cd + 0.40 if cd is not None else 0.85
-        y_bar0 = y_axis + 0.22
-        y_lab0 = y_bar0 + max(bar_rows, default=0) * _BAR_ROW + 0.30
-        height = y_lab0 + (max(len(left), len(right)) - 1) * _ROW + 0.35
+    y_title = 0.30
+    y_cd = 0.85
+    y_axis = y_cd + 0.40 if cd is not None else 0.85
+    y_bar0 = y_axis + 0.22
+    y_lab0 = y_bar0 + max(bar_rows, default=0) * _BAR_ROW + 0.30
+    height = y_lab0 + (max(len(left), len(right)) - 1) * _ROW + 0.35
 
-        fig.set_size_inches(width, height)
-        ax = fig.add_axes((0, 0, 1, 1))
-        ax.set_xlim(0, width)
-        ax.set_ylim(height, 0)  # inches, y grows downwards
-        ax.axis("off")
+    fig.set_size_inches(width, height)
+    ax = fig.add_axes((0, 0, 1, 1))
+    ax.set_xlim(0, width)
+    ax.set_ylim(height, 0)  # inches, y grows downwards
+    ax.axis("off")
 
-        def x_of(rank: float) -> float:
-            return margin + (rank - 1) / (hi - 1) * axis_w
+    def x_of(rank: float) -> float:
+        return margin + (rank - 1) / (hi - 1) * axis_w
 
-        ax.text(width / 2, y_title, title, ha="center", va="center", fontsize=_FONT + 2)
+    ax.text(width / 2, y_title, title, ha="center", va="center", fontsize=_FONT + 2)
 
-        # rank axis with ticks and numbers above it
-        ax.plot([x_of(1), x_of(hi)], [y_axis, y_axis], color=_LINE, lw=1.2)
-        for r in range(1, hi + 1):
-            ax.plot([x_of(r)] * 2, [y_axis, y_axis - 0.08], color=_LINE, lw=1.2)
-            ax.text(x_of(r), y_axis - 0.12, str(r), ha="center", va="bottom", fontsize=_FONT - 1)
-            if r < hi:
-                ax.plot([x_of(r + 0.5)] * 2, [y_axis, y_axis - 0.04], color=_LINE, lw=0.8)
+    # rank axis with ticks and numbers above it
+    ax.plot([x_of(1), x_of(hi)], [y_axis, y_axis], color=_LINE, lw=1.2)
+    for r in range(1, hi + 1):
+        ax.plot([x_of(r)] * 2, [y_axis, y_axis - 0.08], color=_LINE, lw=1.2)
+        ax.text(x_of(r), y_axis - 0.12, str(r), ha="center", va="bottom", fontsize=_FONT - 1)
+        if r < hi:
+            ax.plot([x_of(r + 0.5)] * 2, [y_axis, y_axis - 0.04], color=_LINE, lw=0.8)
 
-        if cd is not None:
-            # from rank 1 when it fits on the axis, else centred on it (few datasets)
-            start = 1.0 if 1 + cd <= hi else (1 + hi - cd) / 2
-            x0, x1 = x_of(start), x_of(start + cd)
-            ax.plot([x0, x1], [y_cd, y_cd], color=_LINE, lw=1.2)
-            for x in (x0, x1):
-                ax.plot([x, x], [y_cd - 0.05, y_cd + 0.05], color=_LINE, lw=1.2)
-            ax.text((x0 + x1) / 2, y_cd - 0.08, f"CD = {cd:.2f}", ha="center", va="bottom",
-                    fontsize=_FONT - 1)
+    if cd is not None:
+        # from rank 1 when it fits on the axis, else centred on it (few datasets)
+        start = 1.0 if 1 + cd <= hi else (1 + hi - cd) / 2
+        x0, x1 = x_of(start), x_of(start + cd)
+        ax.plot([x0, x1], [y_cd, y_cd], color=_LINE, lw=1.2)
+        for x in (x0, x1):
+            ax.plot([x, x], [y_cd - 0.05, y_cd + 0.05], color=_LINE, lw=1.2)
+        ax.text((x0 + x1) / 2, y_cd - 0.08, f"CD = {cd:.2f}", ha="center", va="bottom",
+                fontsize=_FONT - 1)
 
-        # elbow lines and labels
-        for side, names in (("left", left), ("right", right)):
-            for row, name in enumerate(names):
-                y = y_lab0 + row * _ROW
-                x = x_of(ranks[name])
-                end = x_of(1) - 0.25 if side == "left" else x_of(hi) + 0.25
-                ax.plot([x, x, end], [y_axis, y, y], color=_LINE, lw=0.9)
-                ax.text(end - _PAD if side == "left" else end + _PAD, y,
-                        _label(name, ranks[name], side == "left"),
-                        ha="right" if side == "left" else "left", va="center", fontsize=_FONT)
+    # elbow lines and labels
+    for side, names in (("left", left), ("right", right)):
+        for row, name in enumerate(names):
+            y = y_lab0 + row * _ROW
+            x = x_of(ranks[name])
+            end = x_of(1) - 0.25 if side == "left" else x_of(hi) + 0.25
+            ax.plot([x, x, end], [y_axis, y, y], color=_LINE, lw=0.9)
+            ax.text(end - _PAD if side == "left" else end + _PAD, y,
+                    _label(name, ranks[name], side == "left"),
+                    ha="right" if side == "left" else "left", va="center", fontsize=_FONT)
 
-        # group bars, slightly wider than the ranks they join
-        for row, (lo, up) in zip(bar_rows, bars):
-            y = y_bar0 + row * _BAR_ROW
-            ax.plot([x_of(lo) - 0.06, x_of(up) + 0.06], [y, y], color=_BAR, lw=4,
-                    solid_capstyle="round")
-    except BaseException:
-        plt.close(fig)
-        raise
+    # group bars, slightly wider than the ranks they join
+    for row, (lo, up) in zip(bar_rows, bars):
+        y = y_bar0 + row * _BAR_ROW
+        ax.plot([x_of(lo) - 0.06, x_of(up) + 0.06], [y, y], color=_BAR, lw=4,
+                solid_capstyle="round")
     return fig
-
-
-def draw_cd_diagram(avg_ranks: Mapping[str, float], cd: float | None,
-                    groups: Iterable[Iterable[str]], title: str,
-                    path: str | os.PathLike[str], dpi: int = 150) -> str:
-    """Draw a critical difference diagram and save it as a PNG.
-
-    Parameters
-    ----------
-    avg_ranks : mapping
-        Strategy name → average rank (1 = best).
-    cd : float or None
-        Critical difference, drawn as a scale bar above the axis; ``None`` omits it
-        (e.g. when groups come from pairwise tests rather than the Nemenyi CD).
-    groups : iterable of iterables of str
-        Sets of strategies that are not significantly different, e.g. from
-        :func:`harness.stats.nemenyi_groups`. Each group with two or more members becomes a
-        thick bar from its best to its worst average rank; unknown names raise ValueError.
-    title : str
-        Figure title, e.g. ``"Critical difference (Nemenyi, α = 0.05)"``.
-    path : str or path-like
-        Where to write the PNG.
-    dpi : int, default 150
-        Resolution.
-
-    Returns
-    -------
-    str
-        The path written.
-    """
-    fig = cd_figure(avg_ranks, cd, groups, title)
-    try:
-        fig.savefig(os.fspath(path), dpi=dpi, format="png")
-    finally:
-        plt.close(fig)
-    return os.fspath(path)

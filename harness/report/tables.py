@@ -1,42 +1,37 @@
-"""Comparison tables from the results frame (one row per cell), as CSV and Markdown.
-
-All scores are scikit-learn scorer values, so higher is better for every metric
-(``neg_*`` scorers are negated errors).
-"""
+"""Every table of the report, each built once as a `Table` (raw numbers for the CSV, a display
+frame for Markdown and HTML) from the results frame, the verdict or the speedup summary."""
 
 from __future__ import annotations
 
 import numpy as np
 import pandas as pd
 
-from harness.cells import OK
+from harness.analysis.results import (metric_columns, ok_cells, predict_ms_per_1000_rows)
+from harness.analysis.speedup import BUSY_CORES, EXTRAPOLATE_TO, LEVEL
+from harness.analysis.verdict import Verdict
+from harness.report.render import (Table, as_read, interval, lower_is_better,
+                                   metric_heading, metric_label, number, p_text)
+from harness.work_units import OK
 
-ID_COLUMNS = ("key", "run", "dataset", "strategy", "method", "family", "task", "repeat", "fold",
-              "fingerprint", "n_train", "n_test", "status", "message", "detail", "fit_seconds",
-              "fit_cpu_seconds", "predict_seconds", "peak_memory_bytes", "model_bytes", "curve",
-              "threads", "timing", "worker", "seconds", "finished")
-
-
-def metric_columns(frame: pd.DataFrame) -> list[str]:
-    return [c for c in frame.columns if c not in ID_COLUMNS]
+COST_LABELS = {"fit": "mean fit time (s)", "predict": "prediction time per 1,000 rows (ms)"}
 
 
-def primary_metrics(frame: pd.DataFrame, metrics: dict[str, list[str]] | None) -> dict[str, str]:
-    """Dataset → the metric its strategies are ranked by (the first the suite lists)."""
-    out = {}
-    for (ds, task), part in frame.groupby(["dataset", "task"]):
-        names = (metrics or {}).get(task) or [c for c in metric_columns(part)
-                                             if part[c].notna().any()]
-        out[ds] = names[0]
-    return out
+def _read_interval(metric: str, mean, low, high, digits: int = 4) -> str:
+    """A scorer interval as people read the metric (errors positive, ends swapped)."""
+    if lower_is_better(metric):
+        mean, low, high = -mean, (-high if pd.notna(high) else high), \
+            (-low if pd.notna(low) else low)
+    return interval(mean, low, high, digits)
 
 
-def ok_cells(frame: pd.DataFrame) -> pd.DataFrame:
-    return frame[frame["status"] == OK]
+def _level(v: Verdict) -> str:
+    return f"{1 - v.alpha:.0%}"
 
 
-def score_table(frame: pd.DataFrame) -> pd.DataFrame:
-    """Per dataset × strategy × metric: mean, sd, number of cells."""
+# ------------------------------------------------------------------ from the results frame
+
+def scores(frame: pd.DataFrame) -> Table:
+    """Per dataset × strategy × metric: mean, sd and number of successful cells."""
     ok = ok_cells(frame)
     rows = []
     for (ds, st), part in ok.groupby(["dataset", "strategy"], sort=False):
@@ -44,91 +39,386 @@ def score_table(frame: pd.DataFrame) -> pd.DataFrame:
             v = part[m].dropna()
             if len(v):
                 rows.append({"dataset": ds, "strategy": st, "family": part["family"].iloc[0],
-                             "metric": m, "mean": v.mean(), "sd": v.std(ddof=1) if len(v) > 1
-                             else np.nan, "cells": len(v)})
-    return pd.DataFrame(rows)
+                             "metric": m, "mean": v.mean(),
+                             "sd": v.std(ddof=1) if len(v) > 1 else np.nan, "cells": len(v)})
+    data = pd.DataFrame(rows, columns=["dataset", "strategy", "family", "metric", "mean", "sd",
+                                       "cells"])
+    shown = []
+    for ds, part in data.groupby("dataset", sort=False):
+        wide = {"dataset": ds}
+        for st, g in part.groupby("strategy", sort=False):
+            row = dict(wide, strategy=st)
+            for _, r in g.iterrows():
+                mean = as_read(r["metric"], r["mean"])
+                row[metric_heading(r["metric"])] = (f"{number(mean)} ± {number(r['sd'])}"
+                                                    if pd.notna(r["sd"]) else number(mean))
+            shown.append(row)
+    display = pd.DataFrame(shown).fillna("") if shown else pd.DataFrame()
+    return Table("scores", "Scores per dataset (mean ± sd over repeats × folds)", data, display,
+                 group="dataset" if shown else None)
 
 
-def rank_table(frame: pd.DataFrame, metrics: dict[str, list[str]] | None = None) -> pd.DataFrame:
-    """Each strategy's mean rank across datasets (1 = best) on each dataset's first metric,
-    with its mean fit time and how many datasets and failed cells it has."""
-    primary = primary_metrics(frame, metrics)
-    ok = ok_cells(frame)
-    ranks = []
-    for ds, part in ok.groupby("dataset"):
-        means = part.groupby("strategy")[primary[ds]].mean()
-        ranks.append(means.rank(ascending=False, method="average").rename(ds))
-    if not ranks:
-        return pd.DataFrame(columns=["strategy", "family", "mean_rank", "datasets",
-                                     "mean_fit_seconds", "failed_cells"])
-    r = pd.concat(ranks, axis=1)
-    failed = frame[frame["status"] != OK].groupby("strategy").size()
-    fam = frame.groupby("strategy")["family"].first()
-    out = pd.DataFrame({
-        "strategy": r.index,
-        "family": fam.reindex(r.index).to_numpy(),
-        "mean_rank": r.mean(axis=1).to_numpy(),
-        "datasets": r.notna().sum(axis=1).to_numpy(),
-        "mean_fit_seconds": ok.groupby("strategy")["fit_seconds"].mean().reindex(r.index)
-        .to_numpy(),
-        "failed_cells": failed.reindex(r.index).fillna(0).astype(int).to_numpy(),
-    })
-    return out.sort_values(["mean_rank", "mean_fit_seconds"]).reset_index(drop=True)
-
-
-def cost_table(frame: pd.DataFrame) -> pd.DataFrame:
+def costs(frame: pd.DataFrame) -> Table:
     """Per dataset × strategy: mean fit wall and CPU seconds, prediction time per 1,000 rows,
     peak fit memory and pickled model size."""
     ok = ok_cells(frame).copy()
+    cols = ["dataset", "strategy", "family", "fit_seconds", "fit_cpu_seconds",
+            "predict_ms_per_1000_rows", "peak_memory_mib", "model_mib", "cells"]
     if ok.empty:
-        return pd.DataFrame()
-    ok["predict_ms_per_1000_rows"] = ok["predict_seconds"] / ok["n_test"] * 1e6
+        return Table("costs", "Training and prediction cost", pd.DataFrame(columns=cols),
+                     pd.DataFrame())
+    ok["predict_ms_per_1000_rows"] = predict_ms_per_1000_rows(ok["predict_seconds"],
+                                                              ok["n_test"])
     ok["peak_memory_mib"] = ok["peak_memory_bytes"].astype(float) / 2**20
     ok["model_mib"] = ok["model_bytes"].astype(float) / 2**20
-    agg = ok.groupby(["dataset", "strategy"], sort=False).agg(
+    data = ok.groupby(["dataset", "strategy"], sort=False).agg(
         family=("family", "first"), fit_seconds=("fit_seconds", "mean"),
         fit_cpu_seconds=("fit_cpu_seconds", "mean"),
         predict_ms_per_1000_rows=("predict_ms_per_1000_rows", "mean"),
         peak_memory_mib=("peak_memory_mib", "mean"), model_mib=("model_mib", "mean"),
-        cells=("key", "size"))
-    return agg.reset_index()
+        cells=("key", "size")).reset_index()[cols]
+    display = data.rename(columns={
+        "fit_seconds": "fit s", "fit_cpu_seconds": "fit CPU s",
+        "predict_ms_per_1000_rows": "predict ms / 1,000 rows",
+        "peak_memory_mib": "peak fit memory MiB", "model_mib": "model MiB"})
+    return Table("costs", "Training and prediction cost (means over folds)", data, display,
+                 group="dataset",
+                 intro="Times measured with cells running side by side, one thread each.")
 
 
-def failures_table(frame: pd.DataFrame) -> pd.DataFrame:
+def failures(frame: pd.DataFrame) -> Table:
     bad = frame[frame["status"] != OK]
-    return bad[["dataset", "strategy", "repeat", "fold", "status", "message"]].reset_index(drop=True)
+    data = bad[["dataset", "strategy", "repeat", "fold", "status", "message"]] \
+        .reset_index(drop=True)
+    return Table("failures", "Cells that failed or timed out", data, data)
 
 
-# ------------------------------------------------------------------ Markdown rendering
+# ------------------------------------------------------------------ from the verdict
 
-def _fmt(v, digits: int = 4) -> str:
-    if v is None or (isinstance(v, float) and np.isnan(v)):
+def standing_text(r) -> str:
+    """'best', 'tied with best', 'worse than best' or 'no successful cell'."""
+    if pd.isna(r["mean"]):
+        return "no successful cell"
+    return "best" if r["best"] else "tied with best" if r["tied_with_best"] else "worse than best"
+
+
+def pair_outcome(r) -> str:
+    if pd.isna(r["p"]):
+        return "not testable (fewer than 2 shared cells)" if r["pairs"] < 2 else "tied"
+    return "tied" if r["tied"] else f"{r['better']} better"
+
+
+def intervals(v: Verdict) -> Table:
+    """Per dataset: each strategy's mean of the first metric with its corrected interval."""
+    level = _level(v)
+    rows, classes = [], []
+    for ds, part in v.intervals.groupby("dataset", sort=False):
+        part = part.iloc[part["mean"].fillna(-np.inf).to_numpy().argsort(kind="stable")[::-1]]
+        metric = part["metric"].iloc[0]
+        for _, r in part.iterrows():
+            s = standing_text(r)
+            rows.append({"dataset": ds, "strategy": r["strategy"], "family": r["family"],
+                         f"mean [{level} interval]": _read_interval(metric, r["mean"], r["low"],
+                                                                    r["high"]),
+                         "standing": s, "cells": f"{int(r['cells'])}/{int(r['planned'])}",
+                         "fit s": r["fit_seconds"],
+                         "predict ms / 1,000 rows": r["predict_ms_per_1000_rows"]})
+            classes.append({"best": "best", "tied with best": "tied",
+                            "worse than best": "worse"}.get(s, "missing"))
+    titles = {ds: f"{ds}: {metric_heading(m)}" for ds, m in v.primary.items()}
+    return Table("intervals", "Mean score per dataset with its corrected interval",
+                 v.intervals, pd.DataFrame(rows), group="dataset" if rows else None,
+                 group_titles=titles, row_classes=classes,
+                 intro=(f"Mean of each dataset's first metric over repeats × folds with its "
+                        f"{level} corrected interval (Nadeau & Bengio 2003; Bouckaert & Frank "
+                        "2004). Tied with best: the corrected resampled t-test against the "
+                        f"best strategy does not reject equality at α = {v.alpha:g}. Cells: "
+                        "successful of stored."))
+
+
+def pairs(v: Verdict) -> Table:
+    """Per dataset: the corrected resampled t-test of every pair."""
+    rows, classes = [], []
+    for _, r in v.pairs.iterrows():
+        metric = r["metric"]
+        sign = -1 if lower_is_better(metric) else 1
+        lo, hi = sorted([sign * r["low"], sign * r["high"]]) if pd.notna(r["low"]) \
+            else (np.nan, np.nan)
+        rows.append({"dataset": r["dataset"], "a": r["a"], "b": r["b"], "cells": r["pairs"],
+                     "a − b [interval]": interval(sign * r["mean_diff"], lo, hi),
+                     "t": number(r["t"], 3), "p": p_text(r["p"]),
+                     "outcome": pair_outcome(r)})
+        classes.append("" if r["tied"] else "best")
+    titles = {ds: f"{ds}: {metric_heading(m)}" for ds, m in v.primary.items()}
+    return Table("pairs", "Pairwise tests per dataset", v.pairs, pd.DataFrame(rows),
+                 group="dataset" if rows else None, group_titles=titles, row_classes=classes,
+                 intro=("Corrected resampled t-test per pair on the (repeat, fold) cells both "
+                        "have; difference = a − b in the metric as people read it; tied when "
+                        f"p > α = {v.alpha:g}."))
+
+
+def ranks(v: Verdict, frame: pd.DataFrame) -> Table:
+    """The one ranking: average ranks over the complete block of datasets × strategies."""
+    cols = ["strategy", "family", "average_rank", "datasets", "fit_seconds",
+            "predict_ms_per_1000_rows", "failed_cells", "on_fit_front",
+            "wilcoxon_tied_with_best", "nemenyi_tied_with_best"]
+    if v.ranks is None:
+        empty = pd.DataFrame(columns=cols)
+        return Table("ranks", "Average rank across datasets", empty, empty)
+    c = v.costs.set_index("strategy")
+    front = {}
+    if v.pareto is not None:
+        allp = v.pareto[(v.pareto["scope"] == "all datasets") & (v.pareto["cost_kind"] == "fit")]
+        front = dict(zip(allp["strategy"], allp["on_front"]))
+    best = v.best
+    w_tied, n_tied = {best: True}, {best: True}
+    if v.across is not None:
+        for _, r in v.across[v.across["a"] == best].iterrows():
+            w_tied[r["b"]] = not r["wilcoxon_differs"]
+            n_tied[r["b"]] = not r["nemenyi_differs"]
+    failed = frame[frame["status"] != OK].groupby("strategy").size()
+    data = pd.DataFrame([{
+        "strategy": s, "family": c.loc[s, "family"], "average_rank": float(r),
+        "datasets": len(v.matrix), "fit_seconds": c.loc[s, "fit_seconds"],
+        "predict_ms_per_1000_rows": c.loc[s, "predict_ms_per_1000_rows"],
+        "failed_cells": int(failed.get(s, 0)), "on_fit_front": front.get(s),
+        "wilcoxon_tied_with_best": w_tied.get(s), "nemenyi_tied_with_best": n_tied.get(s)}
+        for s, r in v.ranks.items()], columns=cols)
+    display = data.assign(average_rank=[f"{x:.2f}" for x in data["average_rank"]]).rename(
+        columns={"average_rank": "average rank", "fit_seconds": "fit s (geometric mean)",
+                 "predict_ms_per_1000_rows": "predict ms / 1,000 rows (geometric mean)",
+                 "failed_cells": "failed cells", "on_fit_front": "on the fit-time front",
+                 "wilcoxon_tied_with_best": "tied with best (Wilcoxon–Holm)",
+                 "nemenyi_tied_with_best": "tied with best (Nemenyi)"})
+    if not v.tested:
+        display = display.drop(columns=["tied with best (Wilcoxon–Holm)",
+                                        "tied with best (Nemenyi)"])
+    n, k = v.matrix.shape
+    intro = (f"{k} strategies ranked on each of {n} datasets by the dataset's first metric "
+             "(1 = best; equal scores share the mean rank), then averaged. Classification and "
+             "regression datasets pool by rank. Only datasets on which every strategy has a "
+             "score count; what was left out is named below.")
+    footer = " ".join(s[0].upper() + s[1:] + "." for s in v.left_out)
+    return Table("ranks", f"Average rank across datasets (1 = best; {n} datasets)", data,
+                 display, intro=intro, footer=footer)
+
+
+def tests(v: Verdict) -> Table:
+    cols = ["test", "statistic", "df", "p", "datasets", "strategies", "alpha", "decision"]
+    if not v.tested:
+        empty = pd.DataFrame(columns=cols)
+        return Table("tests", "Tests across datasets", empty, empty)
+    f = v.friedman
+    n, k = v.matrix.shape
+    decide = {True: "rejects equal ranks", False: "does not reject"}
+    data = pd.DataFrame([
+        {"test": "Friedman chi-square", "statistic": f.chi2, "df": f"{f.f_df1}",
+         "p": f.chi2_p, "decision": decide[f.chi2_p <= v.alpha]},
+        {"test": "Iman–Davenport F", "statistic": f.f, "df": f"{f.f_df1}, {f.f_df2}",
+         "p": f.f_p, "decision": decide[f.f_p <= v.alpha]},
+        {"test": "Nemenyi critical difference (ranks)", "statistic": v.cd, "df": "",
+         "p": np.nan, "decision": f"{int(v.across['nemenyi_differs'].sum())} of "
+                                  f"{len(v.across)} pairs differ"},
+        {"test": "Wilcoxon signed-rank, Holm", "statistic": np.nan, "df": "", "p": np.nan,
+         "decision": f"{int(v.across['wilcoxon_differs'].sum())} of {len(v.across)} pairs "
+                     "differ"}]).assign(datasets=n, strategies=k, alpha=v.alpha)[cols]
+    display = data.drop(columns=["alpha"]).assign(p=[p_text(p) for p in data["p"]])
+    return Table("tests", f"Tests across datasets (α = {v.alpha:g})", data, display)
+
+
+def scale_text(v: Verdict) -> str:
+    if v.scale == "raw":
+        metric = v.primary[v.matrix.index[0]]
+        return (f"Wilcoxon differences are raw {metric_label(metric)} differences (every "
+                "dataset is judged on this unit-free metric).")
+    return ("Wilcoxon differences are divided by each dataset's fold-to-fold standard deviation "
+            "(pooled over strategies), because the datasets are judged on metrics whose "
+            "differences do not share a unit.")
+
+
+def pairs_across(v: Verdict) -> Table:
+    a = v.across
+    display = pd.DataFrame({
+        "a (ranked ahead)": a["a"], "b": a["b"],
+        "average ranks": [f"{x:.2f} vs {y:.2f}" for x, y in zip(a["rank_a"], a["rank_b"])],
+        "datasets a better": [f"{x} of {n}" for x, n in zip(a["a_wins"], a["n_datasets"])],
+        "Wilcoxon p": [p_text(x) for x in a["p"]], "Holm p": [p_text(x) for x in a["p_holm"]],
+        "Wilcoxon–Holm": ["differ" if x else "tied" for x in a["wilcoxon_differs"]],
+        "Nemenyi": ["differ" if x else "tied" for x in a["nemenyi_differs"]],
+        "win / tie / loss": [f"{w} / {t} / {l}" for w, t, l in
+                             zip(a["wins"], a["ties"], a["losses"])]})
+    intro = (f"The verdict across datasets is the Wilcoxon signed-rank test of each pair with "
+             f"Holm's correction over all {len(a)} pairs: unlike a mean-rank test, its outcome "
+             "for two strategies does not depend on which others are in the comparison. The "
+             f"Nemenyi column compares average ranks with the critical difference ({v.cd:.2f}). "
+             "Win / tie / loss counts datasets where a is significantly better, tied or "
+             f"significantly worse by the per-dataset corrected t-test. {scale_text(v)}")
+    return Table("pairs_across", "Pairs across datasets", a, display, intro=intro,
+                 row_classes=["best" if x else "" for x in a["wilcoxon_differs"]])
+
+
+def pareto(v: Verdict) -> Table:
+    """Per scope (all datasets first, then each dataset): score, both costs and what
+    dominates each strategy."""
+    rows = []
+    scopes = sorted(dict.fromkeys(v.pareto["scope"]), key=lambda s: s != "all datasets")
+    for scope in scopes:
+        part = v.pareto[v.pareto["scope"] == scope]
+        fit, pred = (part[part["cost_kind"] == k].set_index("strategy") for k in COST_LABELS)
+        overall = scope == "all datasets"
+        metric = None if overall else v.primary.get(scope)
+        order = fit["score"].sort_values(ascending=overall).index
+        for s in order:
+            score = fit.loc[s, "score"]
+            rows.append({"scope": scope,
+                         "strategy": s,
+                         "score": f"{score:.2f}" if overall else number(as_read(metric, score)),
+                         COST_LABELS["fit"]: fit.loc[s, "cost"],
+                         "fit: dominated by": fit.loc[s, "dominated_by"] or "on the front",
+                         COST_LABELS["predict"]: pred["cost"].get(s, np.nan),
+                         "prediction: dominated by": pred["dominated_by"].get(s)
+                         or "on the front"})
+    titles = {s: ("All datasets: average rank; times are geometric means over datasets"
+                  if s == "all datasets" else f"{s}: {metric_heading(v.primary[s])}")
+              for s in scopes}
+    return Table("pareto", "Accuracy against cost: Pareto fronts", v.pareto, pd.DataFrame(rows),
+                 group="scope" if rows else None, group_titles=titles,
+                 intro=("A strategy is dominated when another has a score at least as good and "
+                        "a cost at least as low, one of them strictly. Scores and costs are "
+                        "means; timings are taken with cells running side by side, one thread "
+                        "each. Over all datasets the score is the average rank (lower is "
+                        "better) and the cost the geometric mean over datasets."))
+
+
+# ------------------------------------------------------------------ speedup
+
+def _flags(r, margin: float) -> str:
+    if r.get("status") != "ok":
+        return f"{r.get('status')}: {r.get('message')}"
+    flags = []
+    if r.get("noisy"):
+        flags.append(f"noisy (spread {r['spread']:.0%} > {margin:.0%})")
+    if r.get("busy"):
+        flags.append(f"busy (other processes used {r['other_load']:.2f} cores)")
+    if not r.get("limits_ok"):
+        flags.append(f"limits not in force ({r['limits']})")
+    return "; ".join(flags)
+
+
+def _interval2(v, lo, hi, digits: int = 3) -> str:
+    if v is None or pd.isna(v):
         return ""
-    if isinstance(v, (float, np.floating)):
-        return f"{v:.{digits}g}" if abs(v) >= 1e-3 or v == 0 else f"{v:.2e}"
-    return str(v)
+    if lo is None or pd.isna(lo) or abs(hi - lo) < 10 ** -(digits + 1):
+        return f"{v:.{digits}f}"
+    return f"{v:.{digits}f} [{lo:.{digits}f}, {hi:.{digits}f}]"
 
 
-def markdown(frame: pd.DataFrame, digits: int = 4) -> str:
-    """A GitHub-style Markdown table."""
-    if frame.empty:
-        return "_(nothing to show)_\n"
-    cols = list(map(str, frame.columns))
-    lines = ["| " + " | ".join(cols) + " |",
-             "|" + "|".join("---:" if pd.api.types.is_numeric_dtype(frame[c]) else "---"
-                            for c in frame.columns) + "|"]
-    for row in frame.itertuples(index=False):
-        lines.append("| " + " | ".join(_fmt(v, digits).replace("|", "\\|") for v in row) + " |")
-    return "\n".join(lines) + "\n"
-
-
-def scores_markdown(scores: pd.DataFrame) -> str:
-    """One section per dataset: strategies × metrics, each cell 'mean ± sd'."""
+def speedup_intro(runs: list[dict], margin: float) -> str:
+    last = runs[-1] if runs else {}
     parts = []
-    for ds, part in scores.groupby("dataset", sort=False):
-        cell = part.apply(lambda r: f"{r['mean']:.4f} ± {r['sd']:.4f}" if pd.notna(r["sd"])
-                          else f"{r['mean']:.4f}", axis=1)
-        wide = part.assign(value=cell).pivot(index="strategy", columns="metric", values="value")
-        wide = wide[list(dict.fromkeys(part["metric"]))].reset_index()
-        parts.append(f"## {ds}\n\n" + markdown(wide))
-    return "\n".join(parts)
+    if last:
+        parts.append(
+            f"Measured on {last.get('cpu_model', '?')}, {last.get('cores', '?')} cores "
+            f"({last.get('usable_cores', '?')} usable by woodlot); worker counts "
+            f"{', '.join(map(str, last.get('workers', [])))}; {last.get('repeats', '?')} timed "
+            "repeats per point after one untimed warm-up fit. Each point ran alone in a fresh "
+            "process with n_jobs set to the worker count where the estimator has it and the "
+            "OpenMP and BLAS thread pools limited to it; the limits were read back inside "
+            "every fit.")
+        before, after = last.get("load_average_before"), last.get("load_average_after")
+        if before or after:
+            parts.append(f"Load average (1, 5, 15 min) before: {before}; after: {after}.")
+    notes = list(dict.fromkeys(n for s in runs for n in s.get("notes", [])))
+    parts += [f"Note: {n}." for n in notes]
+    parts.append(
+        f"Speedup S(p) = T(1) / T(p) from median fit wall times; efficiency = S(p) / p. "
+        f"Brackets: {LEVEL:.0%} bootstrap interval over repeats (approximate with few "
+        "repeats). CPU s counts every thread and worker process; cores busy = CPU / wall. "
+        f"Noisy: the repeats' fit times differ by more than {margin:.0%} of their median. "
+        f"Busy: other processes kept more than {BUSY_CORES:g} cores busy during the fits.")
+    return " ".join(parts)
+
+
+def speedup_points(points: pd.DataFrame, runs: list[dict], margin: float) -> Table:
+    rows = []
+    for _, r in points.iterrows():
+        ok = r.get("status") == "ok"
+        rows.append({
+            "dataset": r["dataset"], "strategy": r["strategy"], "family": r["family"],
+            "workers": int(r["workers"]),
+            "fit s": number(r.get("fit_seconds")) if ok else "",
+            "min–max s": f"{number(r['fit_seconds_min'], 3)}–{number(r['fit_seconds_max'], 3)}"
+            if ok else "",
+            "CPU s": number(r.get("fit_cpu_seconds")) if ok else "",
+            "cores busy": f"{r['cores_busy']:.2f}" if ok else "",
+            "speedup": _interval2(r.get("speedup"), r.get("speedup_low"),
+                                  r.get("speedup_high"), 2) if ok else "",
+            "efficiency": f"{r['efficiency']:.2f}" if ok and pd.notna(r.get("efficiency"))
+            else "",
+            "predict rows/s": f"{r['predict_rows_per_second']:,.0f}" if ok else "",
+            "flags": _flags(r, margin)})
+    ok = points[points["status"] == "ok"] if "status" in points else points
+    footer = ""
+    if not ok.empty and ok["limits_ok"].all():
+        footer = ("Thread limits seen inside every fit: each pool at the worker count, and "
+                  "n_jobs equal to it where the estimator has one.")
+    elif not ok.empty:
+        footer = (f"Thread limits NOT in force at {int((~ok['limits_ok'].astype(bool)).sum())} "
+                  "point(s); see the flags.")
+    return Table("speedup", "Parallel speedup of fitting", points, pd.DataFrame(rows),
+                 group="dataset" if rows else None, intro=speedup_intro(runs, margin),
+                 footer=footer)
+
+
+def serial_fraction(fits: pd.DataFrame) -> Table:
+    rows = []
+    for _, f in fits.iterrows():
+        fitted = pd.notna(f.get("serial_fraction"))
+        row = {"dataset": f["dataset"], "strategy": f["strategy"], "family": f["family"],
+               "measured S": f"{f['measured_speedup']:.2f} at {int(f['max_workers'])}"
+               if fitted else "",
+               "serial fraction f": _interval2(f.get("serial_fraction"),
+                                               f.get("serial_fraction_low"),
+                                               f.get("serial_fraction_high"))}
+        for q in EXTRAPOLATE_TO:
+            row[f"S({q}), extrapolated"] = _interval2(
+                f.get(f"extrapolated_speedup_{q}"), f.get(f"extrapolated_speedup_{q}_low"),
+                f.get(f"extrapolated_speedup_{q}_high"), 2) if fitted else ""
+        row["fit"] = f["fit"]
+        rows.append(row)
+    return Table("serial_fraction", "Serial fraction (Amdahl's law) and extrapolation", fits,
+                 pd.DataFrame(rows),
+                 intro=("f in S(p) = 1 / (f + (1 − f) / p), fitted by least squares to the "
+                        f"measured speedups (f kept in [0, 1]); {LEVEL:.0%} interval from a "
+                        "bootstrap over repeats. S at "
+                        f"{', '.join(map(str, EXTRAPOLATE_TO))} cores are extrapolations of the "
+                        "fitted law, not measurements; they ignore memory bandwidth, start-up "
+                        "and other overheads that grow with the core count."))
+
+
+def speedup_summary(points: pd.DataFrame, fits: pd.DataFrame) -> pd.DataFrame:
+    """One line per dataset × strategy: speedup at the most workers, the serial fraction, and
+    which of its points were noisy or disturbed by other processes (for the terminal)."""
+    if fits.empty or "serial_fraction" not in fits:
+        return pd.DataFrame()
+    rows = []
+    for _, f in fits.iterrows():
+        fitted = pd.notna(f.get("serial_fraction"))
+        mine = points[(points["dataset"] == f["dataset"]) & (points["strategy"] == f["strategy"])
+                      & (points["status"] == "ok")]
+        flags = [f"{word} at {', '.join(str(int(w)) for w in mine.loc[mine[col], 'workers'])}"
+                 for word, col in (("noisy", "noisy"), ("busy", "busy")) if mine[col].any()]
+        rows.append({"dataset": f["dataset"], "strategy": f["strategy"],
+                     "workers": int(f["max_workers"]) if pd.notna(f["max_workers"]) else None,
+                     "speedup": number(f.get("measured_speedup"), 3),
+                     "serial_fraction": _interval2(f.get("serial_fraction"),
+                                                   f.get("serial_fraction_low"),
+                                                   f.get("serial_fraction_high"), 2)
+                     if fitted else f["fit"],
+                     "flags": "; ".join(flags)})
+    return pd.DataFrame(rows)
+
+
+__all__ = ["COST_LABELS", "scores", "costs", "failures", "intervals", "pairs", "ranks", "tests",
+           "pairs_across", "pareto", "speedup_points", "serial_fraction", "speedup_summary",
+           "scale_text", "standing_text", "pair_outcome"]

@@ -15,13 +15,18 @@
 
 from __future__ import annotations
 
-import resource
+import os
 import time
 from contextlib import contextmanager
 from dataclasses import dataclass
 from pathlib import Path
 
 import psutil
+
+if os.name == "posix":
+    import resource
+else:  # pragma: no cover - Windows: no CPU time of finished child processes
+    resource = None
 
 _STATUS = Path("/proc/self/status")
 _CLEAR = Path("/proc/self/clear_refs")
@@ -69,6 +74,8 @@ def _descendants_cpu() -> dict[int, float]:
 
 
 def _own_cpu() -> float:
+    if resource is None:
+        return time.process_time()
     ch = resource.getrusage(resource.RUSAGE_CHILDREN)
     return time.process_time() + ch.ru_utime + ch.ru_stime
 

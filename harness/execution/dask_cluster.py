@@ -1,8 +1,8 @@
 """Run cells on a Dask cluster: an existing one (scheduler address) or a local one we start.
 
-Same interface as `harness.executors.LocalExecutor`: ``run(cells, datasets, timeout)`` yields
-each cell's row as it finishes (``as_completed``); the runner writes it to the store on the
-client, so progress, resume and failure handling are the same as with local processes.
+The interface of `harness.execution.executor.Executor`: ``run`` yields each cell's row as it
+finishes (``as_completed``); the run writes it to the store on the client, so progress,
+resume and failure handling are the same as with local processes.
 
 - Data: datasets are loaded on the client (by the plan) and sent to the cluster once each
   (``scatter``); the scheduler copies each to every worker (worker to worker), which keeps
@@ -11,9 +11,9 @@ client, so progress, resume and failure handling are the same as with local proc
   client sends it again and resubmits the cells that needed it.
 - One thread per worker process: cells measure CPU time and peak memory per process, so
   workers with more than one thread are refused (and cells set their own thread limits).
-- Same code on every worker: the libraries that compute a result (woodlot, NumPy, SciPy,
-  pandas, scikit-learn, Python) must have the client's versions, since cell keys are made on
-  the client. Mismatched workers are refused before anything runs, and each cell checks its
+- Same code on every worker: woodlot and the libraries that compute a result
+  (`harness.versions`) must have the client's versions, since cell keys are made on the
+  client. Mismatched workers are refused before anything runs, and each cell checks its
   worker again (workers may join later), giving an error row instead of a wrong result.
 - A worker that dies while running a cell (out of memory, killed): Dask runs the cell on
   another worker until the scheduler's ``allowed-failures`` limit; then it is an error row.
@@ -31,23 +31,23 @@ from __future__ import annotations
 import functools
 import logging
 import os
-import platform
 import socket
 import threading
 import time
 import uuid
-from importlib import metadata
 from typing import Any, Iterator
 
-from harness.cells import ERROR, TIMEOUT, Cell, failed_row, run_cell
 from harness.datasets import Dataset
 from harness.errors import UserError
+from harness.execution.executor import Executor
+from harness.execution.run_cell import run_cell
+from harness.versions import differences, result_versions, version
+from harness.work_units import ERROR, TIMEOUT, Cell, failed_row
 
 CONNECT_TIMEOUT = 10.0  # seconds to reach the scheduler and see a worker
 ALLOWED_FAILURES = 2  # worker deaths a cell may cause before it is an error (local cluster)
 RESUBMITS = 3  # times a cell is sent again when its dataset was lost with its workers
 RESTART_WAIT = 60.0  # seconds a worker waits for the restart that stops an overrun cell
-RESULT_LIBRARIES = ("woodlot", "numpy", "scipy", "pandas", "scikit-learn")
 
 
 def _distributed():
@@ -60,19 +60,8 @@ def _distributed():
 
 @functools.lru_cache(maxsize=1)
 def library_versions() -> dict[str, str]:
-    """Versions of what computes a cell's result, as this process sees them."""
-    out = {"python": ".".join(platform.python_version_tuple()[:2])}
-    for lib in RESULT_LIBRARIES:
-        try:
-            out[lib] = metadata.version(lib)
-        except metadata.PackageNotFoundError:
-            out[lib] = "missing"
-    return out
-
-
-def version_differences(theirs: dict[str, str], ours: dict[str, str]) -> list[str]:
-    return [f"{lib} {theirs.get(lib, 'missing')} (here {ours[lib]})" for lib in ours
-            if theirs.get(lib) != ours[lib]]
+    """woodlot's version and those of the result libraries, as this process sees them."""
+    return {"woodlot": version("woodlot"), **result_versions()}
 
 
 # --------------------------------------------------------------------------- on the workers
@@ -94,9 +83,9 @@ def _run_task(cell: Cell, dataset: Dataset, timeout: float | None,
 
     worker = get_worker()
     where = f"Dask worker {worker.address} ({socket.gethostname()})"
-    differences = version_differences(library_versions(), expected)
-    if differences:
-        return failed_row(cell, ERROR, f"{where} has {', '.join(differences)}; cell not run "
+    found = differences(library_versions(), expected)
+    if found:
+        return failed_row(cell, ERROR, f"{where} has {', '.join(found)}; cell not run "
                           "(install the client's versions on every worker)")
     threads = getattr(getattr(worker, "state", worker), "nthreads", 1)
     if threads != 1:
@@ -155,13 +144,13 @@ def _check_reachable(address: str, timeout: float) -> None:
                         "start one with 'dask scheduler' or check the address") from None
 
 
-class DaskExecutor:
+class DaskExecutor(Executor):
     """Cells as Dask tasks: on the scheduler at ``scheduler``, or on a local cluster of
     ``workers`` single-threaded worker processes on the loopback interface.
 
-    `connect` (called by the runner before anything is written) reaches the cluster and
-    checks its workers; `run` submits the cells and closes the connection when done, so
-    an executor serves one run. ``allowed_failures`` is the local cluster's limit of worker
+    `open` (called before anything is written) reaches the cluster, or starts the local
+    one, and checks its workers; `run` submits the cells; `close` closes the connection and
+    any cluster it started. ``allowed_failures`` is the local cluster's limit of worker
     deaths per cell (an existing scheduler keeps its own ``allowed-failures`` setting).
     """
 
@@ -184,7 +173,7 @@ class DaskExecutor:
         self._log_levels: list = []
 
     # ------------------------------------------------------------------ connection
-    def connect(self) -> None:
+    def open(self) -> None:
         """Reach the cluster and check its workers; `UserError` if that is not possible."""
         if self.client is not None:
             return
@@ -249,10 +238,10 @@ class DaskExecutor:
                             "worker") from None
         ours = library_versions()
         for addr, probe in sorted(probes.items()):
-            differences = version_differences(probe["versions"], ours)
-            if differences:
+            found = differences(probe["versions"], ours)
+            if found:
                 raise UserError(f"Dask worker {addr} ({probe['hostname']}) has "
-                                f"{', '.join(differences)}; install the same versions on every "
+                                f"{', '.join(found)}; install the same versions on every "
                                 "worker (results and cell keys depend on them)")
         try:
             limit = client.run_on_scheduler(lambda dask_scheduler: dask_scheduler.allowed_failures)
@@ -268,8 +257,7 @@ class DaskExecutor:
                         "workers": sorted(probes), "allowed_failures": limit}
 
     def describe(self) -> dict[str, Any]:
-        """What the run's provenance records about where the cells ran."""
-        return {"dask": dict(self.details)} if self.details else {}
+        return {"executor": self.name, "jobs": None, "dask": dict(self.details)}
 
     def close(self) -> None:
         for thread in self._restarting.values():
@@ -292,13 +280,10 @@ class DaskExecutor:
     # ------------------------------------------------------------------ running
     def run(self, cells: list[Cell], datasets: dict[str, Dataset],
             timeout: float | None) -> Iterator[dict]:
-        try:
-            if not cells:
-                return
-            self.connect()
-            yield from self._stream(cells, datasets, timeout)
-        finally:
-            self.close()
+        if not cells:
+            return
+        self.open()
+        yield from self._stream(cells, datasets, timeout)
 
     def _stream(self, cells: list[Cell], datasets: dict[str, Dataset],
                 timeout: float | None) -> Iterator[dict]:

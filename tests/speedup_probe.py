@@ -1,7 +1,7 @@
 """An estimator for the speedup-sweep tests that writes down, from inside its own fit, the
 thread limits it finds (threadpoolctl) and the ``n_jobs`` it was given.
 
-Imported by path from suite files (``classifier = "tests.scaling_probe:ThreadsSeen"``) in the
+Imported by path from suite files (``classifier = "tests.speedup_probe:ThreadsSeen"``) in the
 fresh process the sweep starts for each point.
 """
 

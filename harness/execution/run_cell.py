@@ -1,82 +1,27 @@
-"""Cells: one dataset × strategy × repeat × fold. Plan them, key them, run one.
-
-Running a cell = build the estimator (with in-fold preprocessing), fit on the training rows,
-predict and score the test rows with every metric the suite names, and take the measurements
-described in `harness.measure`. Ensembles that can predict member by member also get their
-test score at a handful of ensemble sizes (the ensemble-size curve).
-"""
+"""Running one cell: build the estimator (with in-fold preprocessing), fit on the training
+rows, predict and score the test rows with every metric the suite names, and take the
+measurements of `harness.execution.measure`. Ensembles that can predict member by member also
+get their test score at a handful of ensemble sizes (the ensemble-size curve)."""
 
 from __future__ import annotations
 
 import functools
-import hashlib
-import json
 import os
 import pickle
 import socket
 import time
 import traceback
-from dataclasses import dataclass, field
 from typing import Any
 
 import numpy as np
-import sklearn
 from sklearn.metrics import check_scoring, get_scorer
 from threadpoolctl import threadpool_limits
 
-from harness.datasets import CLASSIFICATION, Dataset
-from harness.measure import measured
-from harness.preprocess import final_estimator, transform_for_members, with_preprocessing
-from harness.strategies import Strategy
-
-CELL_FORMAT = 1  # bump when the meaning of a stored cell changes
-OK, ERROR, TIMEOUT = "ok", "error", "timeout"
-
-
-@dataclass(frozen=True)
-class Cell:
-    """Everything a worker needs to run one cell (the dataset travels separately, once)."""
-
-    key: str
-    dataset: str
-    fingerprint: str
-    task: str
-    strategy: Strategy
-    repeat: int
-    fold: int
-    train: np.ndarray
-    test: np.ndarray
-    metrics: tuple[str, ...]
-    seed: int
-    memory: bool = True
-    model_size: bool = True
-    size_curve: bool = True
-    curve_points: int = 8
-    threads: int = 1
-    timing: str = "side by side"  # or "alone" (speedup sweeps)
-
-    def identity(self) -> dict[str, Any]:
-        return {"dataset": self.dataset, "strategy": self.strategy.name,
-                "method": self.strategy.method, "family": self.strategy.family,
-                "task": self.task, "repeat": self.repeat, "fold": self.fold,
-                "fingerprint": self.fingerprint, "n_train": int(len(self.train)),
-                "n_test": int(len(self.test))}
-
-
-def cell_key(*, fingerprint: str, estimator: str, train: np.ndarray, test: np.ndarray,
-             metrics, measure: dict[str, Any], threads: int = 1) -> str:
-    """Hash of everything that changes a cell's result: data content, resolved estimator,
-    the exact split, metrics, measurements and the versions of the computing libraries."""
-    h = hashlib.sha256()
-    h.update(json.dumps({"format": CELL_FORMAT, "fingerprint": fingerprint, "estimator": estimator,
-                         "metrics": list(metrics), "measure": measure, "threads": threads,
-                         "versions": [sklearn.__version__, np.__version__]},
-                        sort_keys=True).encode())
-    h.update(np.asarray(train, dtype=np.int64).tobytes())
-    h.update(b"|")
-    h.update(np.asarray(test, dtype=np.int64).tobytes())
-    return h.hexdigest()[:32]
-
+from harness.datasets import Dataset
+from harness.execution.measure import measured
+from harness.execution.preprocess import (final_estimator, transform_for_members,
+                                          with_preprocessing)
+from harness.work_units import ERROR, OK, Cell
 
 # --------------------------------------------------------------------------- running
 
@@ -222,9 +167,3 @@ def run_cell(cell: Cell, dataset: Dataset) -> dict[str, Any]:
                    detail=traceback.format_exc()[-4000:])
     row["seconds"] = time.time() - started
     return row
-
-
-def failed_row(cell: Cell, status: str, message: str) -> dict[str, Any]:
-    """The row for a cell that did not finish (timeout, worker lost)."""
-    return {"key": cell.key, **cell.identity(), "threads": cell.threads, "timing": cell.timing,
-            "status": status, "message": message}

@@ -1,8 +1,8 @@
 """From the results frame to verdicts: which differences are real, and at what cost.
 
-The statistics themselves are the pure functions of `harness.stats`; this module is the glue
-between the store's results frame (one row per cell) and those functions, and the plain-words
-summary the report and the command line show.
+The statistics themselves are the pure functions of `harness.analysis.stats`; this module is
+the glue between the results frame (one row per cell) and those functions. The words a reader
+sees are made from the `Verdict` in `harness.report.words`.
 
 Per dataset
     Each dataset is judged on its first metric (the first the suite lists for its task). Every
@@ -33,6 +33,9 @@ Across datasets
     by that dataset's fold-to-fold standard deviation (pooled over strategies), i.e. measured in
     units of the dataset's own noise.
 
+    The one ranking of the report is the block's average ranks: a strategy missing on some
+    dataset is named in ``left_out``, never ranked over fewer datasets.
+
 Cost
     Pareto fronts of score against mean fit time and against prediction time per 1,000 rows,
     per dataset (mean score) and over all datasets (average rank against the geometric mean over
@@ -48,14 +51,13 @@ from dataclasses import dataclass, field
 import numpy as np
 import pandas as pd
 
-from harness import stats
-from harness.cells import OK
-from harness.report.tables import primary_metrics
+from harness.analysis import stats
+from harness.analysis.results import (geometric_mean, ok_cells, pooled_sd, primary_metrics,
+                                      strategy_means)
 
-__all__ = ["Verdict", "verdict", "strategy_means", "tied_runs", "complete_block",
-           "fmt_p", "p_text", "DEFAULT_ALPHA"]
+__all__ = ["Verdict", "verdict", "tied_runs", "complete_block", "ALPHA", "unit_free"]
 
-DEFAULT_ALPHA = 0.05
+ALPHA = 0.05  # the significance level of every test and recommendation (1 − level intervals)
 
 # Scorers whose values have no unit and the same range on every dataset (proportions,
 # correlations, r2): differences of these can be compared across datasets as they are.
@@ -109,13 +111,16 @@ class Verdict:
     scale : str
         How the Wilcoxon differences were scaled: ``"raw"`` or ``"noise"``.
     costs : DataFrame
-        Per strategy over the block: ``strategy, family, fit_seconds, predict_ms_per_1000_rows``
+        Per strategy over the block: ``strategy, family, method, fit_seconds,
+        predict_ms_per_1000_rows``
         (geometric means over datasets).
     pareto : DataFrame
         ``scope, cost_kind, strategy, score, cost, on_front, dominated_by``; scope is a dataset
         name or ``"all datasets"`` (whose score is the average rank, lower is better).
-    notes : list of str
-        Honest caveats about what the tests can tell.
+    smallest_p, needed_p : float or None
+        The smallest two-sided Wilcoxon p-value the block's number of datasets allows, and
+        the p Holm's first step needs; when ``smallest_p > needed_p`` no Wilcoxon–Holm
+        difference is possible (`powerless`).
     """
 
     alpha: float
@@ -133,8 +138,13 @@ class Verdict:
     scale: str = "raw"
     costs: pd.DataFrame | None = None
     pareto: pd.DataFrame | None = None
-    notes: list[str] = field(default_factory=list)
-    powerless: str = ""  # why Wilcoxon–Holm cannot tell any pair apart here, when it cannot
+    smallest_p: float | None = None
+    needed_p: float | None = None
+
+    @property
+    def powerless(self) -> bool:
+        """Whether the block is too small for any Wilcoxon–Holm difference."""
+        return self.smallest_p is not None and self.smallest_p > self.needed_p
 
     @property
     def tested(self) -> bool:
@@ -145,47 +155,24 @@ class Verdict:
     def best(self) -> str | None:
         return None if self.ranks is None or self.ranks.empty else str(self.ranks.index[0])
 
-    def summary(self) -> list[str]:
-        """The verdict in plain words, one sentence per item, figures included."""
-        return _summary(self)
+    def standing(self, dataset: str) -> dict:
+        """On one dataset: ``best`` (highest mean), ``tied`` (not told apart from it, best
+        mean first), and the cheapest of those to fit and to predict."""
+        part = self.intervals[(self.intervals["dataset"] == dataset)
+                              & self.intervals["mean"].notna()]
+        if part.empty:
+            return {}
+        part = part.sort_values("mean", ascending=False, kind="stable")
+        best = str(part.loc[part["best"], "strategy"].iloc[0])
+        group = part[part["tied_with_best"] | part["best"]]
+        return {"best": best,
+                "tied": [str(s) for s in group["strategy"] if s != best],
+                "cheapest_to_fit": str(group.loc[group["fit_seconds"].idxmin(), "strategy"]),
+                "cheapest_to_predict": str(group.loc[group["predict_ms_per_1000_rows"].idxmin(),
+                                                     "strategy"])}
 
 
 # ------------------------------------------------------------------ building blocks
-
-def p_text(p: float) -> str:
-    """``0.041``, ``< 0.001``, ``0.41``; ``–`` when no test was possible."""
-    if p is None or not np.isfinite(p):
-        return "–"
-    return "< 0.001" if p < 0.001 else f"{p:.3f}" if p < 0.1 else f"{p:.2f}"
-
-
-def fmt_p(p: float) -> str:
-    """``p = 0.041``, ``p < 0.001``; ``p = –`` when no test was possible."""
-    text = p_text(p)
-    return f"p {text}" if text.startswith("<") else f"p = {text}"
-
-
-def strategy_means(frame: pd.DataFrame, primary: dict[str, str]) -> pd.DataFrame:
-    """Per dataset × strategy over successful cells: ``dataset, strategy, family, metric, score,
-    sd, cells, fit_seconds, predict_ms_per_1000_rows`` (means; ``sd`` of the score over cells).
-
-    The points of every Pareto front and of the score-against-time chart.
-    """
-    ok = frame[frame["status"] == OK]
-    rows = []
-    for (ds, st), part in ok.groupby(["dataset", "strategy"], sort=False):
-        metric = primary[ds]
-        v = part[metric].dropna()
-        if v.empty:
-            continue
-        per_1000 = (part["predict_seconds"] / part["n_test"] * 1e6).mean()
-        rows.append({"dataset": ds, "strategy": st, "family": part["family"].iloc[0],
-                     "metric": metric, "score": float(v.mean()),
-                     "sd": float(v.std(ddof=1)) if len(v) > 1 else np.nan, "cells": len(v),
-                     "fit_seconds": float(part["fit_seconds"].mean()),
-                     "predict_ms_per_1000_rows": float(per_1000)})
-    return pd.DataFrame(rows, columns=["dataset", "strategy", "family", "metric", "score", "sd",
-                                       "cells", "fit_seconds", "predict_ms_per_1000_rows"])
 
 
 def complete_block(scores: pd.DataFrame) -> tuple[pd.DataFrame, list[tuple[str, str, list[str]]]]:
@@ -243,17 +230,10 @@ def tied_runs(order: list[str], differs: dict[frozenset, bool]) -> list[list[str
     return groups
 
 
-def _geomean(values: pd.Series) -> float:
-    v = values.to_numpy(float)
-    v = v[np.isfinite(v) & (v > 0)]
-    return float(np.exp(np.mean(np.log(v)))) if len(v) else np.nan
-
-
 def _noise_scale(ok: pd.DataFrame, dataset: str, metric: str, strategies) -> float:
     """Pooled fold-to-fold sd of ``metric`` on ``dataset`` over ``strategies``."""
     part = ok[(ok["dataset"] == dataset) & ok["strategy"].isin(list(strategies))]
-    var = part.groupby("strategy")[metric].var(ddof=1).dropna()
-    sd = float(np.sqrt(var.mean())) if len(var) else np.nan
+    sd = pooled_sd(part, metric)
     if not np.isfinite(sd) or sd <= 0:  # every strategy constant: fall back to the spread
         sd = float(part.groupby("strategy")[metric].mean().std(ddof=1))
     return sd if np.isfinite(sd) and sd > 0 else 1.0
@@ -262,7 +242,7 @@ def _noise_scale(ok: pd.DataFrame, dataset: str, metric: str, strategies) -> flo
 # ------------------------------------------------------------------ the verdict
 
 def verdict(frame: pd.DataFrame, metrics: dict[str, list[str]] | None = None,
-            alpha: float = DEFAULT_ALPHA) -> Verdict:
+            alpha: float = ALPHA) -> Verdict:
     """Per-dataset and across-dataset verdicts and cost fronts for a results frame.
 
     Parameters
@@ -278,7 +258,7 @@ def verdict(frame: pd.DataFrame, metrics: dict[str, list[str]] | None = None,
     if not 0 < alpha < 1:
         raise ValueError(f"alpha must be in (0, 1), got {alpha}")
     primary = primary_metrics(frame, metrics)
-    ok = frame[frame["status"] == OK]
+    ok = ok_cells(frame)
     means = strategy_means(frame, primary)
     intervals, pairs = _per_dataset(frame, ok, primary, means, alpha)
     v = Verdict(alpha=alpha, primary=primary, intervals=intervals, pairs=pairs,
@@ -310,10 +290,6 @@ def verdict(frame: pd.DataFrame, metrics: dict[str, list[str]] | None = None,
     v.pareto = _pareto(means, v)
     if n >= 2 and k >= 2:
         _across(v, ok, block, pairs, alpha)
-    else:
-        v.notes.append(f"The across-dataset tests need at least two datasets and two strategies "
-                       f"scored on all of them; here there are {n} and {k}. Read the "
-                       "per-dataset tables.")
     return v
 
 
@@ -375,9 +351,10 @@ def _costs(means: pd.DataFrame, block: pd.DataFrame) -> pd.DataFrame:
     for st in block.columns:
         part = sub[sub["strategy"] == st]
         rows.append({"strategy": st, "family": part["family"].iloc[0] if len(part) else None,
-                     "fit_seconds": _geomean(part["fit_seconds"]),
-                     "predict_ms_per_1000_rows": _geomean(part["predict_ms_per_1000_rows"])})
-    return pd.DataFrame(rows, columns=["strategy", "family", "fit_seconds",
+                     "method": part["method"].iloc[0] if len(part) else None,
+                     "fit_seconds": geometric_mean(part["fit_seconds"]),
+                     "predict_ms_per_1000_rows": geometric_mean(part["predict_ms_per_1000_rows"])})
+    return pd.DataFrame(rows, columns=["strategy", "family", "method", "fit_seconds",
                                        "predict_ms_per_1000_rows"])
 
 
@@ -458,128 +435,4 @@ def _across(v: Verdict, ok: pd.DataFrame, block: pd.DataFrame, pairs: pd.DataFra
     # Exact two-sided Wilcoxon signed-rank p-values are multiples of 2^-N; the smallest, when
     # one strategy wins on every dataset, is 2 · 2^-N (Wilcoxon's null distribution:
     # every sign pattern equally likely). Holm's first step compares it with alpha / m.
-    smallest = 2.0 ** (1 - n)
-    if smallest > alpha / m:
-        v.powerless = (
-            f"With {n} datasets the smallest two-sided Wilcoxon p-value possible is "
-            f"{smallest:.3g} (one strategy better on every dataset); Holm's correction over "
-            f"{m} pair{'s' if m > 1 else ''} needs p ≤ {alpha / m:.3g} for a first rejection, so "
-            "the Wilcoxon–Holm verdict cannot tell any pair apart here. More datasets are needed "
-            "for a verdict across datasets.")
-        v.notes.append(v.powerless)
-    if n < 5:
-        v.notes.append(f"Only {n} datasets: the across-dataset tests have little power and "
-                       "their verdicts mean little; read the per-dataset tables.")
-    if v.friedman.f_p > alpha:
-        v.notes.append(f"The Friedman test does not reject that all {k} strategies rank alike "
-                       f"(Iman–Davenport F = {v.friedman.f:.2f}, {fmt_p(v.friedman.f_p)}): the "
-                       "differences in average rank may be chance, and the Nemenyi post-hoc "
-                       "comparison should not be read as a finding.")
-
-
-# ------------------------------------------------------------------ plain words
-
-def _names(items: list[str]) -> str:
-    if len(items) <= 2:
-        return " and ".join(items)
-    return ", ".join(items[:-1]) + " and " + items[-1]
-
-
-def _count(n, word: str, plural: str = "s") -> str:
-    return f"{int(n)} {word}{'' if int(n) == 1 else plural}"
-
-
-def _seconds(s: float) -> str:
-    return f"{s:.3g} s" if np.isfinite(s) else "? s"
-
-
-def _summary(v: Verdict) -> list[str]:
-    out: list[str] = []
-    if v.ranks is None or v.ranks.empty:
-        return ["No strategy has a successful cell, so there is nothing to compare."]
-    n, k = v.matrix.shape
-    best = v.best
-    if not v.tested:
-        for ds, part in v.intervals.dropna(subset=["mean"]).groupby("dataset", sort=False):
-            top = part[part["best"]].iloc[0]
-            others = [s for s in part.loc[part["tied_with_best"] & ~part["best"], "strategy"]]
-            out.append(f"On {ds} ({top['metric']}), {top['strategy']} has the best mean score "
-                       f"({top['mean']:.4g})" + (f"; tied with it (corrected t-test, α = "
-                                                 f"{v.alpha:g}): {_names(others)}." if others
-                                                 else "; no other strategy is tied with it."))
-        return out + v.notes + [s[0].upper() + s[1:] + "." for s in v.left_out]
-    r = v.ranks
-    out.append(f"{best} has the best average rank ({r[best]:.2f} over {n} datasets, each "
-               f"ranked on its first metric; 1 = best of {k}).")
-    f = v.friedman
-    rejects, chi2_rejects = f.f_p <= v.alpha, f.chi2_p <= v.alpha
-    out.append(f"The Friedman test {'rejects' if rejects else 'does not reject'} that "
-               f"all {k} strategies rank alike (Iman–Davenport F = {f.f:.2f}, {fmt_p(f.f_p)}"
-               + (f"; its chi-square form {'does' if chi2_rejects else 'does not'} "
-                  f"(χ² = {f.chi2:.2f}, {fmt_p(f.chi2_p)})" if rejects != chi2_rejects else "")
-               + ").")
-    vs_best = v.across[v.across["a"] == best]
-    tied = [(row["b"], row["p_holm"]) for _, row in vs_best.iterrows()
-            if not row["wilcoxon_differs"]]
-    beaten = [(row["b"], row["p_holm"]) for _, row in vs_best.iterrows()
-              if row["wilcoxon_differs"]]
-    parts = []
-    if tied:
-        first, rest = tied[0], tied[1:]
-        parts.append(f"statistically tied with {first[0]} (Wilcoxon–Holm {fmt_p(first[1])})"
-                     + "".join(f", {s} ({fmt_p(p)})" for s, p in rest))
-    if beaten:
-        parts.append("better than " + ", ".join(f"{s} ({fmt_p(p)})" for s, p in beaten))
-    out.append(f"By the Wilcoxon signed-rank test with Holm's correction it is "
-               + "; and ".join(parts) + ".")
-    if v.powerless:
-        out.append(v.powerless)
-    if len(vs_best):
-        runner = vs_best.iloc[0]
-        out.append(f"Against the runner-up {runner['b']}, dataset by dataset (corrected t-test, "
-                   f"α = {v.alpha:g}): {_count(runner['wins'], 'win')}, "
-                   f"{_count(runner['ties'], 'tie')}, {_count(runner['losses'], 'loss', 'es')}.")
-    nem = [row["b"] for _, row in vs_best.iterrows() if row["nemenyi_differs"]]
-    out.append(f"By the Nemenyi critical difference ({v.cd:.2f} ranks at α = {v.alpha:g}) it "
-               + (f"differs from {_names(nem)}." if nem else "differs from no other strategy."))
-    cost = v.costs.set_index("strategy")["fit_seconds"]
-    if v.powerless:  # "tied" would say nothing: use the per-dataset tests instead
-        never_worse = [row["b"] for _, row in vs_best.iterrows() if row["wins"] == 0]
-        cheapest = min([best] + never_worse, key=lambda s: (cost.get(s, np.inf), s))
-        if not never_worse:
-            out.append(f"Every other strategy is significantly worse than {best} on at least "
-                       f"one dataset (corrected t-test); {best} takes {_seconds(cost[best])} "
-                       "per fit (geometric mean over datasets).")
-        elif cheapest == best:
-            out.append(f"{_names(never_worse)} {'is' if len(never_worse) == 1 else 'are'} never "
-                       f"significantly worse than {best} on a dataset (corrected t-test), but "
-                       f"not cheaper to fit; {best} takes {_seconds(cost[best])} per fit "
-                       "(geometric mean over datasets).")
-        else:
-            out.append(f"The cheapest strategy never significantly worse than {best} on a "
-                       f"dataset (corrected t-test) is {cheapest} at {_seconds(cost[cheapest])} "
-                       f"per fit against {_seconds(cost[best])} (geometric means over "
-                       "datasets).")
-        group = []
-    else:
-        group = [best] + [s for s, _ in tied]
-        cheapest = min(group, key=lambda s: (cost.get(s, np.inf), s))
-    if not group:
-        pass
-    elif cheapest == best:
-        out.append(f"No strategy tied with it is cheaper to fit: {best} takes "
-                   f"{_seconds(cost[best])} per fit (geometric mean over datasets).")
-    else:
-        out.append(f"The cheapest strategy tied with the best is {cheapest} at "
-                   f"{_seconds(cost[cheapest])} per fit against {_seconds(cost[best])} for "
-                   f"{best} (geometric means over datasets).")
-    if v.pareto is not None:
-        allp = v.pareto[(v.pareto["scope"] == "all datasets") & (v.pareto["cost_kind"] == "fit")]
-        if len(allp):
-            on = allp.loc[allp["on_front"], "strategy"].tolist()
-            dom = [f"{r['strategy']} (by {r['dominated_by']})" for _, r in
-                   allp[~allp["on_front"]].iterrows()]
-            out.append(f"On the average-rank against fit-time front: {_names(on)}"
-                       + (f"; dominated: {'; '.join(dom)}." if dom else "; none is dominated."))
-    return out + [n for n in v.notes if n != v.powerless] + [s[0].upper() + s[1:] + "."
-                                                             for s in v.left_out]
+    v.smallest_p, v.needed_p = 2.0 ** (1 - n), alpha / m

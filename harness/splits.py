@@ -2,27 +2,18 @@
 
 from __future__ import annotations
 
-from dataclasses import dataclass
-
 import numpy as np
 from sklearn.model_selection import (RepeatedKFold, RepeatedStratifiedKFold, ShuffleSplit,
                                      StratifiedShuffleSplit)
 
-from harness.datasets import CLASSIFICATION, Dataset
+from harness.datasets import CLASSIFICATION, Dataset, Split
 from harness.errors import UserError
+from harness.suite import KFOLD, PUBLISHED, Protocol
 
 
-@dataclass(frozen=True)
-class Split:
-    repeat: int
-    fold: int
-    train: np.ndarray
-    test: np.ndarray
-
-
-def splitter(protocol, task: str, n_rows: int):
+def splitter(protocol: Protocol, task: str, n_rows: int):
     """The scikit-learn splitter the protocol stands for (also used by the reference tests)."""
-    if protocol.resampling == "cv":
+    if protocol.splits == KFOLD:
         cls = RepeatedStratifiedKFold if task == CLASSIFICATION else RepeatedKFold
         return cls(n_splits=protocol.folds, n_repeats=protocol.repeats,
                    random_state=protocol.seed)
@@ -34,25 +25,24 @@ def splitter(protocol, task: str, n_rows: int):
                random_state=protocol.seed)
 
 
-def make_splits(dataset: Dataset, protocol, where: str) -> list[Split]:
+def make_splits(dataset: Dataset, protocol: Protocol, where: str) -> list[Split]:
     """All splits of one dataset under the suite's protocol, checked for feasibility."""
-    if protocol.resampling == "openml":
+    if protocol.splits == PUBLISHED:
         if not dataset.splits:
-            raise UserError("resampling = \"openml\" needs datasets with published splits "
+            raise UserError("splits = \"published\" needs datasets with published splits "
                             "(an OpenML entry with 'task = ID')", file=where, field="from")
-        return [Split(s.repeat, s.fold, np.asarray(s.train), np.asarray(s.test))
-                for s in dataset.splits]
+        return list(dataset.splits)
     n = dataset.n_rows
     if dataset.task == CLASSIFICATION:
         counts = dataset.y.value_counts()
         smallest, label = int(counts.min()), counts.idxmin()
-        need = protocol.folds if protocol.resampling == "cv" else 2
+        need = protocol.folds if protocol.splits == KFOLD else 2
         if smallest < need:
-            what = (f"{protocol.folds} folds" if protocol.resampling == "cv"
+            what = (f"{protocol.folds} folds" if protocol.splits == KFOLD
                     else "a stratified holdout")
             raise UserError(f"class {label!r} has {smallest} row(s), fewer than {what} need; "
                             "merge rare classes or use fewer folds", file=where, field="target")
-    if protocol.resampling == "cv" and n < protocol.folds:
+    if protocol.splits == KFOLD and n < protocol.folds:
         raise UserError(f"{n} rows cannot fill {protocol.folds} folds", file=where)
     if protocol.train_rows is not None and protocol.train_rows >= n:
         raise UserError(f"train_rows = {protocol.train_rows} leaves no test rows in {n} rows",
@@ -61,7 +51,7 @@ def make_splits(dataset: Dataset, protocol, where: str) -> list[Split]:
     y = dataset.y.to_numpy()
     X_dummy = np.zeros((n, 1))
     out = []
-    per_repeat = protocol.folds if protocol.resampling == "cv" else 1
+    per_repeat = protocol.folds if protocol.splits == KFOLD else 1
     for i, (train, test) in enumerate(split.split(X_dummy, y)):
         out.append(Split(i // per_repeat, i % per_repeat, train, test))
     return out

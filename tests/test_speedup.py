@@ -1,5 +1,5 @@
-"""The parallel speedup sweep: Amdahl fit, thread limits inside the fit, CPU of worker
-processes, the forest/boosting contrast, outputs from the store alone, bad [scaling] entries."""
+"""Parallel speedup: Amdahl fit, thread limits inside the fit, CPU of worker processes, the
+forest/boosting contrast, outputs from the store alone, bad [speedup] entries."""
 
 from __future__ import annotations
 
@@ -13,13 +13,14 @@ import pytest
 from threadpoolctl import threadpool_info
 
 from harness.cli import main
-from harness.measure import measured
+from harness.execution.measure import measured
 from harness.plan import make_plan
-from harness.report.build import build_outputs
-from harness.scaling import (amdahl_speedup, fit_serial_fraction, plan_sweep, run_point,
-                             summarize, usable_cores, worker_counts)
+from harness.analysis.speedup import amdahl_speedup, fit_serial_fraction, summarize
+from harness.execution.speedup_point import run_point
+from harness.plan import plan_speedup, usable_cores, worker_counts
+from harness.report.writer import write_report
 from harness.store import Store
-from harness.suite import Scaling, load_suite
+from harness.suite import SpeedupSettings, load_suite
 
 TWO_CORES = pytest.mark.skipif(usable_cores() < 2, reason="needs at least two cores")
 
@@ -142,7 +143,7 @@ PROBE_SUITE = """
 name = "probe"
 
 [protocol]
-resampling = "holdout"
+splits = "holdout"
 test_fraction = 0.25
 repeats = 1
 
@@ -154,10 +155,10 @@ params = {{ n_samples = 800, n_features = 6, random_state = 0 }}
 
 [[strategy]]
 name = "threads-seen"
-classifier = "tests.scaling_probe:ThreadsSeen"
+classifier = "tests.speedup_probe:ThreadsSeen"
 params = {{ record = "{record}" }}
 
-[scaling]
+[speedup]
 workers = [1, 2]
 repeats = 2
 """
@@ -168,7 +169,7 @@ def test_thread_limits_are_in_force_inside_each_fit(write_suite, tmp_path):
     record = tmp_path / "seen.jsonl"
     path = write_suite(PROBE_SUITE.format(record=record))
     before = {(i["filepath"], i["num_threads"]) for i in threadpool_info()}
-    assert main(["scale", str(path), "--out", str(tmp_path / "out"), "--quiet"]) == 0
+    assert main(["speedup", str(path), "--out", str(tmp_path / "out"), "--quiet"]) == 0
     seen = [json.loads(line) for line in record.read_text().splitlines()]
     # per point: one warm-up fit and two timed ones, each in the point's own process
     assert [s["n_jobs"] for s in seen] == [1, 1, 1, 2, 2, 2]
@@ -178,7 +179,7 @@ def test_thread_limits_are_in_force_inside_each_fit(write_suite, tmp_path):
             assert set(threads) == {s["n_jobs"]}, (api, s)
     # the sweep's own record of what it found inside the fits agrees
     with Store(tmp_path / "out") as store:
-        frame = store.scaling_frame()
+        frame = store.speedup_frame()
     assert len(frame) == 4 and (frame.status == "ok").all()
     for _, row in frame.iterrows():
         limits = json.loads(row["limits"])
@@ -193,7 +194,7 @@ CONTRAST_SUITE = """
 name = "contrast"
 
 [protocol]
-resampling = "holdout"
+splits = "holdout"
 test_fraction = 0.2
 repeats = 1
 seed = 1
@@ -219,7 +220,7 @@ name = "boosting"
 method = "gradient-boosting"
 params = { n_estimators = 20 }
 
-[scaling]
+[speedup]
 workers = [1, 2]
 repeats = 2
 """
@@ -233,7 +234,7 @@ def test_two_workers_speed_up_a_forest_but_not_classic_boosting(write_suite):
     stages' residuals and has no n_jobs, so two workers leave its fit time unchanged."""
     suite = load_suite(write_suite(CONTRAST_SUITE))
     plan = make_plan(suite)
-    points, _, _ = plan_sweep(suite, plan.datasets, plan.splits, suite.scaling, 2)
+    points, _, _ = plan_speedup(plan, suite.speedup, 2)
     rows = [r for p in points for r in run_point(p, plan.datasets[p.dataset], 120)]
     frame = pd.DataFrame(rows)
     assert (frame.status == "ok").all(), frame.message.tolist()
@@ -261,12 +262,12 @@ def test_speedup_outputs_regenerate_from_the_store_alone(tmp_path):
     rows = synthetic_rows(0.1, [1, 2, 4], 3, noise=0.02, strategy="forest") + \
         synthetic_rows(0.9, [1, 2, 4], 3, noise=0.02, strategy="boosting", seed=1)
     with Store(folder) as store:
-        run = store.start_run("t", "", "test", {"scaling": {"noise_margin": 0.15,
+        run = store.start_run("t", "", "test", {"speedup": {"noise_margin": 0.15,
                                                           "workers": [1, 2, 4], "notes": []}})
-        store.set_scaling_plan({r["key"] for r in rows})
+        store.set_speedup_plan({r["key"] for r in rows})
         for key in sorted({r["key"] for r in rows}):
-            store.put_scaling([r for r in rows if r["key"] == key], run)
-    out = build_outputs(folder)
+            store.put_speedup([r for r in rows if r["key"] == key], run)
+    out = write_report(folder)
     names = {p.name for p in out.files}
     assert {"speedup.csv", "speedup.md", "serial_fraction.csv", "speedup.png",
             "fit_time_vs_workers.png"} <= names
@@ -278,10 +279,10 @@ def test_speedup_outputs_regenerate_from_the_store_alone(tmp_path):
         assert part.speedup.iloc[0] == pytest.approx(t1 / tp)
     fits = pd.read_csv(folder / "tables" / "serial_fraction.csv").set_index("strategy")
     assert fits.loc["forest", "serial_fraction"] < fits.loc["boosting", "serial_fraction"]
-    text = (folder / "tables" / "speedup.md").read_text()
+    text = (folder / "tables" / "serial_fraction.md").read_text()
     assert "extrapolations of the fitted law, not measurements" in text
     before = {n: (folder / "tables" / n).read_text() for n in
-              ("speedup.csv", "speedup.md", "serial_fraction.csv")}
+              ("speedup.csv", "speedup.md", "serial_fraction.csv", "serial_fraction.md")}
     for sub in ("tables", "plots"):
         for p in (folder / sub).iterdir():
             p.unlink()
@@ -295,7 +296,7 @@ SMALL_SWEEP = """
 name = "sweep"
 
 [protocol]
-resampling = "holdout"
+splits = "holdout"
 test_fraction = 0.25
 repeats = 1
 
@@ -314,7 +315,7 @@ name = "forest"
 method = "random-forest"
 params = { n_estimators = 10 }
 
-[scaling]
+[speedup]
 workers = [1, 2, 64]
 repeats = 2
 """
@@ -324,22 +325,22 @@ repeats = 2
 def test_scale_command_measures_resumes_and_reports(write_suite, tmp_path, capsys):
     path = write_suite(SMALL_SWEEP)
     out = tmp_path / "out"
-    assert main(["scale", str(path), "--out", str(out), "--quiet"]) == 0
+    assert main(["speedup", str(path), "--out", str(out), "--quiet"]) == 0
     captured = capsys.readouterr()
-    assert "4 sweep points planned (workers 1, 2): 0 already stored, 4 measured" in captured.out
+    assert "4 speedup points planned (workers 1, 2): 0 already stored, 4 measured" in captured.out
     assert "64 exceeds the" in captured.err and "clipped to" in captured.err
     assert "clipped to" in (out / "tables" / "speedup.md").read_text()
-    prov = json.loads((out / "provenance.json").read_text())["scaling"]
+    prov = json.loads((out / "provenance.json").read_text())["speedup"]
     for key in ("cpu_model", "cores", "load_average_before", "load_average_after"):
         assert prov[key] is not None, key
     table = pd.read_csv(out / "tables" / "speedup.csv")
     assert len(table) == 4 and (table.status == "ok").all()
     assert (table.fit_seconds > 0).all() and (table.predict_rows_per_second > 0).all()
-    assert main(["scale", str(path), "--out", str(out), "--quiet"]) == 0
+    assert main(["speedup", str(path), "--out", str(out), "--quiet"]) == 0
     assert "4 already stored, 0 measured" in capsys.readouterr().out
 
 
-# ------------------------------------------------------------------ bad [scaling] entries
+# ------------------------------------------------------------------ bad [speedup] entries
 
 @pytest.mark.parametrize("entry, field, words", [
     ('datasets = ["nope"]', "datasets", "'nope' is not a dataset of this suite"),
@@ -349,8 +350,8 @@ def test_scale_command_measures_resumes_and_reports(write_suite, tmp_path, capsy
     ("noise_margin = 0", "noise_margin", "relative spread"),
     ("repeat = 3", "repeat", "did you mean 'repeats'"),
 ])
-@pytest.mark.parametrize("command", ["scale", "run"])
-def test_bad_scaling_entry_is_one_clear_line_and_exit_2(write_suite, tmp_path, capsys, entry,
+@pytest.mark.parametrize("command", ["speedup", "run"])
+def test_bad_speedup_entry_is_one_clear_line_and_exit_2(write_suite, tmp_path, capsys, entry,
                                                         field, words, command):
     body = SMALL_SWEEP.replace("workers = [1, 2, 64]\nrepeats = 2\n", entry + "\n")
     path = write_suite(body)
@@ -358,30 +359,14 @@ def test_bad_scaling_entry_is_one_clear_line_and_exit_2(write_suite, tmp_path, c
     assert main([command, str(path), "--out", str(out)]) == 2
     err = capsys.readouterr().err.strip()
     assert len(err.splitlines()) == 1, err
-    assert str(path) in err and "[scaling]" in err and f"field '{field}'" in err and words in err
+    assert str(path) in err and "[speedup]" in err and f"field '{field}'" in err and words in err
     assert not out.exists()
 
 
-def test_old_store_gains_the_new_sweep_columns(tmp_path):
-    import sqlite3
-
-    tmp_path.mkdir(exist_ok=True)
-    db = sqlite3.connect(tmp_path / "cells.sqlite")
-    db.execute("CREATE TABLE scaling (id INTEGER PRIMARY KEY AUTOINCREMENT, run INTEGER, "
-               "dataset TEXT, strategy TEXT, family TEXT, workers INTEGER, repeat INTEGER, "
-               "fit_seconds REAL, fit_cpu_seconds REAL, predict_rows_per_second REAL, "
-               "limits TEXT, host TEXT, finished REAL)")
-    db.commit()
-    db.close()
-    with Store(tmp_path) as store:
-        store.put_scaling(synthetic_rows(0.5, [1], 1), 1)
-        assert store.scaling_keys() == {"s-1"}
-
-
-def test_default_sweep_covers_every_dataset_and_strategy(write_suite):
+def test_default_speedup_covers_every_dataset_and_strategy(write_suite):
     suite = load_suite(write_suite(SMALL_SWEEP))
     plan = make_plan(suite)
-    points, counts, _ = plan_sweep(suite, plan.datasets, plan.splits, Scaling(), 4)
+    points, counts, _ = plan_speedup(plan, SpeedupSettings(), 4)
     assert counts == [1, 2, 4]
     assert {(p.strategy.name, p.workers) for p in points} == \
         {(s, w) for s in ("tree", "forest") for w in (1, 2, 4)}

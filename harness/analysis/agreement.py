@@ -1,4 +1,4 @@
-"""Compare two results folders: did the scores reproduce, and how did the timings move?
+"""Do two results folders agree? Did the scores reproduce, and how did the timings move?
 
 Cells are matched first by cell key (same data, estimator, split, metrics, measurement
 settings and library versions), then — for the cells left over — by their identity
@@ -27,14 +27,13 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
-from harness.cells import ERROR, OK
+from harness.analysis.results import metric_columns, ok_cells, pooled_sd
 from harness.errors import UserError
-from harness.report.tables import markdown, metric_columns
-from harness.store import Store
+from harness.work_units import ERROR, OK
 
-__all__ = ["Comparison", "compare_folders", "render", "DEFAULT_TOLERANCE"]
+__all__ = ["Comparison", "agreement", "DEFAULT_SD_LIMIT"]
 
-DEFAULT_TOLERANCE = 1.0
+DEFAULT_SD_LIMIT = 1.0
 IDENTITY = ["dataset", "strategy", "repeat", "fold"]
 _FLOAT_NOISE = 1e-12
 
@@ -103,24 +102,14 @@ class Comparison:
         return 1 if self.differs else 0
 
 
-def _load(folder: Path) -> tuple[pd.DataFrame, dict]:
-    with Store(folder, create=False) as store:
-        frame = store.cells_frame()
-        run = store.last_run() or {}
-    return frame, (run.get("provenance") or {})
-
-
 def _noise(frame: pd.DataFrame, metrics: list[str]) -> pd.DataFrame:
     """Pooled fold-to-fold sd per dataset × metric over the successful cells of ``frame``."""
-    ok = frame[frame["status"] == OK]
     rows = []
-    for ds, part in ok.groupby("dataset", sort=False):
+    for ds, part in ok_cells(frame).groupby("dataset", sort=False):
         for m in metrics:
             if m not in part or part[m].notna().sum() < 2:
                 continue
-            var = part.groupby("strategy")[m].var(ddof=1).dropna()
-            rows.append({"dataset": ds, "metric": m,
-                         "sd": float(np.sqrt(var.mean())) if len(var) else np.nan})
+            rows.append({"dataset": ds, "metric": m, "sd": pooled_sd(part, m)})
     return pd.DataFrame(rows, columns=["dataset", "metric", "sd"])
 
 
@@ -148,19 +137,16 @@ def _reasons(pairs: pd.DataFrame, prov_a: dict, prov_b: dict) -> pd.DataFrame:
     return (pd.Series(reasons, name="reason").value_counts().rename("cells").reset_index())
 
 
-def compare_folders(a: str | Path, b: str | Path,
-                    tolerance: float = DEFAULT_TOLERANCE) -> Comparison:
-    """Match the cells of two results folders and compare their scores and timings.
+def agreement(a: Path, fa: pd.DataFrame, prov_a: dict, b: Path, fb: pd.DataFrame,
+              prov_b: dict, tolerance: float = DEFAULT_SD_LIMIT) -> Comparison:
+    """Match the cells of two results frames (folders ``a`` and ``b``, with the provenance of
+    their latest runs) and compare their scores and timings.
 
     Folder ``a`` is the reference: its fold-to-fold spread sets the yardstick. Raises
-    `UserError` for a folder without a store, a negative tolerance, or folders that share no
-    cell at all.
+    `UserError` for a negative tolerance, or folders that share no cell at all.
     """
     if not np.isfinite(tolerance) or tolerance < 0:
-        raise UserError(f"--tolerance must be a number of at least 0, got {tolerance}")
-    a, b = Path(a), Path(b)
-    fa, prov_a = _load(a)
-    fb, prov_b = _load(b)
+        raise UserError(f"--sd-limit must be a number of at least 0, got {tolerance}")
     c = Comparison(a, b, tolerance, cells_a=len(fa), cells_b=len(fb))
     if fa.empty or fb.empty:
         raise UserError(f"{a if fa.empty else b} has no cells to compare; run a suite into it "
@@ -242,65 +228,3 @@ def _timing(both_ok: pd.DataFrame) -> pd.DataFrame:
         cells=("fit_ratio", "size"), fit_ratio=("fit_ratio", "median"),
         predict_ratio=("predict_ratio", "median")).reset_index()
     return g[cols]
-
-
-def _geomean(x: pd.Series) -> float:
-    v = x.to_numpy(float)
-    v = v[np.isfinite(v) & (v > 0)]
-    return float(np.exp(np.log(v).mean())) if len(v) else np.nan
-
-
-def render(c: Comparison, limit: int = 20) -> str:
-    """The comparison as text (Markdown tables), ending with the one-line outcome."""
-    lines = [f"Reference A: {c.a}   compared B: {c.b}",
-             f"Tolerance: a score differs when |B − A| > {c.tolerance:g} × the fold-to-fold "
-             "standard deviation of its metric on its dataset in A (pooled over strategies).",
-             "",
-             f"Cells: {c.cells_a} in A, {c.cells_b} in B; {c.by_key} matched by cell key, "
-             f"{c.by_identity} by dataset, strategy, repeat and fold with different keys; "
-             f"{len(c.only_a)} only in A, {len(c.only_b)} only in B."]
-    if not c.key_reasons.empty:
-        lines += ["", "Why keys differ for the cells matched by identity:", "",
-                  markdown(c.key_reasons)]
-    n = len(c.scores)
-    worst = c.groups.sort_values("max_in_sd", ascending=False) if not c.groups.empty else None
-    lines += ["", f"Scores: {c.differing_scores} of {n} cell scores differ beyond the tolerance"
-              + (f"; largest change {worst['max_in_sd'].iloc[0]:.3g} sd" if worst is not None
-                 and np.isfinite(worst["max_in_sd"].iloc[0]) else "") + "."]
-    if worst is not None:
-        show = worst[worst["differs"] > 0]
-        if show.empty:
-            show = worst[worst["max_abs_diff"] > 0].head(5)
-        if not show.empty:
-            lines += ["", markdown(show.head(limit).rename(columns={
-                "differs": "cells beyond", "max_in_sd": "max |Δ| / sd",
-                "max_abs_diff": "max |Δ|", "mean_diff": "mean Δ (B − A)"}))]
-            if len(show) > limit:
-                lines.append(f"... and {len(show) - limit} more rows")
-    if not c.status_changes.empty:
-        lines += ["", f"Cells whose status changed ({c.differing_status} between a score and "
-                  "an error count as differing; timeouts are a timing matter):", "",
-                  markdown(c.status_changes.head(limit))]
-    if not c.timing.empty:
-        t = c.timing
-        lines += ["", f"Timing (never fails the comparison): median ratio B / A of fit time, "
-                  f"geometric mean over dataset × strategy {_geomean(t['fit_ratio']):.3g} "
-                  f"(range {t['fit_ratio'].min():.3g}–{t['fit_ratio'].max():.3g}); prediction "
-                  f"time {_geomean(t['predict_ratio']):.3g}."]
-        far = t[(t["fit_ratio"] > 2) | (t["fit_ratio"] < 0.5)]
-        if not far.empty:
-            lines += ["", "Fit time more than doubled or halved (often a busy machine, not a "
-                      "change in the method):", "", markdown(far.head(limit))]
-            if len(far) > limit:
-                lines.append(f"... and {len(far) - limit} more rows")
-    for name, only in (("A", c.only_a), ("B", c.only_b)):
-        if not only.empty:
-            g = only.groupby(["dataset", "strategy"], sort=False).size().rename("cells")
-            lines += ["", f"Only in {name}:", "", markdown(g.reset_index().head(limit))]
-    lines += ["", ("DIFFERENT: " if c.differs else "SAME: ")
-              + (f"{c.differing_scores} cell score(s) beyond {c.tolerance:g} sd"
-                 + (f" and {c.differing_status} cell(s) with a score in one folder and an error "
-                    "in the other" if c.differing_status else "")
-                 if c.differs else f"every shared score is within {c.tolerance:g} sd")
-              + f" ({c.by_key + c.by_identity} cells compared)."]
-    return "\n".join(lines)

@@ -50,7 +50,7 @@ def test_cv_splits_match_scikit_learn(write_suite):
 
 def test_holdout_with_absolute_training_rows(write_suite):
     body = SMALL_SUITE.replace("folds = 3\nrepeats = 2",
-                               'resampling = "holdout"\ntrain_rows = 100\nrepeats = 4')
+                               'splits = "holdout"\ntrain_rows = 100\nrepeats = 4')
     plan = make_plan(load_suite(write_suite(body)))
     wine = plan.splits["wine"]
     assert len(wine) == 4

@@ -14,9 +14,7 @@ from __future__ import annotations
 import copy
 import os
 import re
-import tempfile
 import tomllib
-import unicodedata
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any, Callable
@@ -28,8 +26,10 @@ from harness.datasets import load_dataset
 from harness.datasets.base import TASKS
 from harness.datasets.files import PARQUET_SUFFIXES
 from harness.errors import UserError
-from harness.protocol import make_splits
-from harness.suite import _NAME, load_suite
+from harness.files import replacing
+from harness.names import RULE, is_name, make_name
+from harness.splits import make_splits
+from harness.suite import KFOLD, load_suite
 
 DELIMITER_WORDS = {"tab": "\t", "\\t": "\t", "comma": ",", "semicolon": ";", "pipe": "|"}
 DECIMALS = (".", ",")
@@ -49,12 +49,8 @@ class Added:
 
 
 def default_name(path: str | Path) -> str:
-    """The file's stem made into a suite name: letters, digits, ``- _ .``, starting with a
-    letter or digit (accents dropped, other characters become ``-``)."""
-    stem = unicodedata.normalize("NFKD", Path(path).stem).encode("ascii", "ignore").decode()
-    name = re.sub(r"[^A-Za-z0-9_.\-]+", "-", stem)
-    name = re.sub(r"^[^A-Za-z0-9]+", "", name).rstrip("-.")
-    return name or "data"
+    """The file's stem made into a dataset name (`harness.names`)."""
+    return make_name(Path(path).stem)
 
 
 def dialect_option(value: str | None, key: str, where: str) -> str | None:
@@ -97,9 +93,9 @@ def add_file(suite_path: str | Path, data_path: str | Path, target: str, *,
     where = str(data_path)
     if name is None:
         name = default_name(data_path)
-    elif not _NAME.match(name):
-        raise UserError(f"'{name}' is not a usable name (letters, digits, - _ .)",
-                        file=suite_path, field="name")
+    elif not is_name(name):
+        raise UserError(f"'{name}' is not a usable name ({RULE})", file=suite_path,
+                        field="name")
     if name in {d.name for d in suite.datasets}:
         raise UserError(f"the suite already has a dataset named '{name}'; choose another "
                         "with --name", file=suite_path, field="name")
@@ -109,7 +105,7 @@ def add_file(suite_path: str | Path, data_path: str | Path, target: str, *,
     delimiter = dialect_option(delimiter, "delimiter", where)
     decimal = dialect_option(decimal, "decimal", where)
     p = suite.protocol
-    folds = p.folds if p.resampling == "cv" else 2
+    folds = p.folds if p.splits == KFOLD else 2
     dataset, check = check_file(data_path, target, name=name, task=task, drop=drop,
                                 delimiter=delimiter, decimal=decimal, folds=folds)
     for line in check.lines():
@@ -206,22 +202,16 @@ def _place(text: str, entry: dict[str, Any], suite_path: Path) -> tuple[str, str
 def _write_checked(suite_path: Path, data: bytes, name: str, fingerprint: str) -> None:
     """Write under a temporary name in the same folder, check, rename over the suite file."""
     try:
-        fd, tmp = tempfile.mkstemp(dir=suite_path.parent, prefix=suite_path.stem + ".",
-                                   suffix=".adding.toml")
+        with replacing(suite_path) as tmp:
+            with open(tmp, "wb") as f:
+                f.write(data)
+                f.flush()
+                os.fsync(f.fileno())
+            os.chmod(tmp, suite_path.stat().st_mode & 0o7777)
+            spec = next(d for d in load_suite(tmp).datasets if d.name == name)
+            if load_dataset(spec).fingerprint != fingerprint:
+                raise RuntimeError(f"the entry written for '{name}' does not reproduce the "
+                                   "checked table; the suite file was left unchanged")
     except OSError as exc:
         raise UserError(f"cannot write next to the suite file ({exc.strerror})",
                         file=suite_path) from None
-    tmp_path = Path(tmp)
-    try:
-        with os.fdopen(fd, "wb") as f:
-            f.write(data)
-            f.flush()
-            os.fsync(f.fileno())
-        os.chmod(tmp_path, suite_path.stat().st_mode & 0o7777)
-        spec = next(d for d in load_suite(tmp_path).datasets if d.name == name)
-        if load_dataset(spec).fingerprint != fingerprint:
-            raise RuntimeError(f"the entry written for '{name}' does not reproduce the checked "
-                               "table; the suite file was left unchanged")
-        os.replace(tmp_path, suite_path)
-    finally:
-        tmp_path.unlink(missing_ok=True)

@@ -1,33 +1,22 @@
-"""Executors run cells and yield their result rows as they finish.
-
-All executors share one interface, ``run(cells, datasets, timeout) -> iterator of rows``,
-so the runner's progress bar, store writes, resume and failure handling are the same
-whatever runs the cells. This module has the local one (`harness.dask_executor` has the
-Dask one): a pool of worker processes owned by woodlot (not `concurrent.futures`), because a
-cell that exceeds its time limit must be stopped, which only killing its process can do. Each
-worker receives each dataset once.
-"""
+"""The local executor: a pool of worker processes owned by woodlot (not
+`concurrent.futures`), because a cell that exceeds its time limit must be stopped, which only
+killing its process can do. Each worker receives each dataset once."""
 
 from __future__ import annotations
 
-import multiprocessing as mp
 import os
 import signal
 import time
 from collections import deque
 from multiprocessing.connection import wait
-from typing import Iterator, Protocol
+from typing import Iterator
 
-from harness.cells import ERROR, TIMEOUT, Cell, failed_row, run_cell
 from harness.datasets import Dataset
-
-
-class Executor(Protocol):
-    name: str
-
-    def run(self, cells: list[Cell], datasets: dict[str, Dataset],
-            timeout: float | None) -> Iterator[dict]:
-        """Run ``cells`` (``datasets`` keyed by fingerprint); yield each row as it finishes."""
+from harness.errors import UserError
+from harness.execution.executor import Executor
+from harness.execution.processes import context
+from harness.execution.run_cell import run_cell
+from harness.work_units import ERROR, TIMEOUT, Cell, failed_row
 
 
 def _worker_main(conn) -> None:
@@ -81,24 +70,13 @@ class _Worker:
         self.conn.close()
 
 
-def _context():
-    try:
-        ctx = mp.get_context("forkserver")
-        ctx.set_forkserver_preload(["harness.cells"])
-        return ctx
-    except ValueError:  # platforms without forkserver
-        return mp.get_context("spawn")
-
-
-class LocalExecutor:
+class LocalExecutor(Executor):
     """``jobs`` worker processes on this machine, each cell single-threaded by default."""
 
     name = "local"
 
     def __init__(self, jobs: int | None = None) -> None:
         if jobs is not None and jobs < 1:
-            from harness.errors import UserError
-
             raise UserError(f"--jobs must be at least 1, got {jobs}")
         self.jobs = jobs or os.cpu_count() or 1
 
@@ -106,7 +84,7 @@ class LocalExecutor:
             timeout: float | None) -> Iterator[dict]:
         if not cells:
             return
-        ctx = _context()
+        ctx = context()
         pending = deque(cells)
         workers = [_Worker(ctx) for _ in range(min(self.jobs, len(cells)))]
         try:
@@ -145,24 +123,3 @@ class LocalExecutor:
     def _replace(worker: _Worker, ctx) -> _Worker:
         worker.stop(force=True)
         return _Worker(ctx)
-
-
-def make_executor(kind: str = "local", *, jobs: int | None = None, scheduler: str | None = None,
-                  workers: int | None = None) -> Executor:
-    """The executor the command line's options name: ``local`` (``jobs`` processes) or
-    ``dask`` (``scheduler`` address of a running cluster, or ``workers`` for a local one)."""
-    from harness.errors import UserError
-
-    if kind == "local":
-        if scheduler is not None or workers is not None:
-            raise UserError("--scheduler and --workers are options of the Dask executor; add "
-                            "--executor dask")
-        return LocalExecutor(jobs)
-    if kind == "dask":
-        if jobs is not None:
-            raise UserError("--jobs is for the local executor; with --executor dask the "
-                            "cluster's workers run the cells (--workers N for a local cluster)")
-        from harness.dask_executor import DaskExecutor
-
-        return DaskExecutor(scheduler=scheduler, workers=workers)
-    raise UserError(f"unknown executor '{kind}'; choose local or dask")

@@ -1,0 +1,78 @@
+"""Reading the results frame (one row per cell, `harness.store.Store.cells_frame`): which
+columns are metrics, which metric judges each dataset, and the per-dataset means every
+table, front and test starts from."""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+
+from harness.work_units import OK
+
+ID_COLUMNS = ("key", "run", "dataset", "strategy", "method", "family", "task", "repeat", "fold",
+              "fingerprint", "n_train", "n_test", "status", "message", "detail", "fit_seconds",
+              "fit_cpu_seconds", "predict_seconds", "peak_memory_bytes", "model_bytes", "curve",
+              "threads", "timing", "worker", "seconds", "finished")
+
+
+def metric_columns(frame: pd.DataFrame) -> list[str]:
+    """The columns of ``frame`` that hold scores (named after their scikit-learn scorer)."""
+    return [c for c in frame.columns if c not in ID_COLUMNS]
+
+
+def ok_cells(frame: pd.DataFrame) -> pd.DataFrame:
+    return frame[frame["status"] == OK]
+
+
+def primary_metrics(frame: pd.DataFrame, metrics: dict[str, list[str]] | None) -> dict[str, str]:
+    """Dataset → the metric it is judged on (the first the suite lists for its task)."""
+    out = {}
+    for (ds, task), part in frame.groupby(["dataset", "task"], sort=False):
+        names = (metrics or {}).get(task) or [c for c in metric_columns(part)
+                                             if part[c].notna().any()]
+        out[ds] = names[0]
+    return out
+
+
+def predict_ms_per_1000_rows(predict_seconds, n_test):
+    """Prediction time per 1,000 test rows, in milliseconds."""
+    return predict_seconds / n_test * 1e6
+
+
+def geometric_mean(values) -> float:
+    """Geometric mean of the finite, positive values (NaN when there are none): the summary
+    of times of different datasets, whose ratios should not depend on which dataset is
+    slowest (common practice for summarising times)."""
+    v = np.asarray(values, dtype=float)
+    v = v[np.isfinite(v) & (v > 0)]
+    return float(np.exp(np.mean(np.log(v)))) if len(v) else np.nan
+
+
+def pooled_sd(part: pd.DataFrame, metric: str) -> float:
+    """Fold-to-fold standard deviation of ``metric`` pooled over the strategies of ``part``
+    (one dataset): the square root of the mean of the strategies' variances."""
+    var = part.groupby("strategy")[metric].var(ddof=1).dropna()
+    return float(np.sqrt(var.mean())) if len(var) else np.nan
+
+
+def strategy_means(frame: pd.DataFrame, primary: dict[str, str]) -> pd.DataFrame:
+    """Per dataset × strategy over successful cells: ``dataset, strategy, family, method,
+    metric, score, sd, cells, fit_seconds, predict_ms_per_1000_rows`` (means; ``sd`` of the
+    score over cells)."""
+    cols = ["dataset", "strategy", "family", "method", "metric", "score", "sd", "cells",
+            "fit_seconds", "predict_ms_per_1000_rows"]
+    ok = ok_cells(frame)
+    rows = []
+    for (ds, st), part in ok.groupby(["dataset", "strategy"], sort=False):
+        metric = primary[ds]
+        v = part[metric].dropna()
+        if v.empty:
+            continue
+        per_1000 = predict_ms_per_1000_rows(part["predict_seconds"], part["n_test"]).mean()
+        rows.append({"dataset": ds, "strategy": st, "family": part["family"].iloc[0],
+                     "method": part["method"].iloc[0], "metric": metric,
+                     "score": float(v.mean()),
+                     "sd": float(v.std(ddof=1)) if len(v) > 1 else np.nan, "cells": len(v),
+                     "fit_seconds": float(part["fit_seconds"].mean()),
+                     "predict_ms_per_1000_rows": float(per_1000)})
+    return pd.DataFrame(rows, columns=cols)

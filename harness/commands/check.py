@@ -1,0 +1,41 @@
+"""``woodlot check``: validate a suite and describe its plan without fitting anything."""
+
+from __future__ import annotations
+
+import pandas as pd
+
+from harness.plan import make_plan
+from harness.report.render import markdown_table
+from harness.suite import KFOLD, HOLDOUT, load_suite
+
+
+def check_suite(path) -> str:
+    """The plan of the suite at ``path`` as text (raises `UserError` on bad input)."""
+    suite = load_suite(path)
+    plan = make_plan(suite)
+    p = suite.protocol
+    if p.splits == KFOLD:
+        how = f"{p.repeats} × {p.folds}-fold cross-validation"
+    elif p.splits == HOLDOUT:
+        how = f"{p.repeats} holdout split(s), " + (f"{p.train_rows} training rows"
+                                                   if p.train_rows else
+                                                   f"test fraction {p.test_fraction}")
+    else:
+        how = "the datasets' published splits"
+    limit = "none" if p.cell_timeout is None else f"{p.cell_timeout:g} s"
+    lines = [f"suite '{suite.name}': {suite.description}".rstrip(": "),
+             f"protocol: {how}, seed {p.seed}; cell time limit {limit}", ""]
+    ds = pd.DataFrame([d.summary() for d in plan.datasets.values()])
+    ds["metrics"] = [", ".join(p.metrics[t]) for t in ds["task"]]
+    ds["splits"] = [len(plan.splits[n]) for n in ds["dataset"]]
+    lines.append("Datasets\n" + markdown_table(ds.drop(columns=["fingerprint"])))
+    st = pd.DataFrame([{"strategy": s.name, "family": s.family, "method": s.method,
+                        "params": ", ".join(f"{k}={v}" for k, v in s.params.items())}
+                       for s in suite.strategies])
+    lines.append("Strategies\n" + markdown_table(st))
+    for strategy, dataset in plan.skipped:
+        lines.append(f"note: strategy '{strategy}' has no estimator for dataset '{dataset}'s "
+                     "task; skipped")
+    lines.append(f"{len(plan.cells)} cells ({len(plan.datasets)} datasets × "
+                 f"{len(suite.strategies)} strategies × splits); nothing was fitted.")
+    return "\n".join(lines)

@@ -1,0 +1,119 @@
+"""``woodlot run``: run every cell of a suite the store does not have yet, then its speedup
+points when the suite has a ``[speedup]`` section, then write the report."""
+
+from __future__ import annotations
+
+import time
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Callable
+
+from harness.commands.lifecycle import Echo, session, stderr_echo
+from harness.commands.progress import Progress
+from harness.commands.speedup import SpeedupResult, measure_points
+from harness.errors import UserError
+from harness.execution.executor import Executor
+from harness.execution.local import LocalExecutor
+from harness.report.writer import Outputs, write_report
+from harness.work_units import OK, Cell
+
+TIMING = "cells side by side, one thread each"
+
+
+@dataclass
+class RunResult:
+    folder: Path
+    planned: int
+    reused: int
+    ran: int = 0
+    failed: int = 0
+    stopped: bool = False  # the deadline came before every selected cell had run
+    notes: list[str] = field(default_factory=list)
+    speedup: SpeedupResult | None = None
+    outputs: Outputs | None = None
+
+    def __repr__(self) -> str:
+        return (f"RunResult(folder='{self.folder}', planned={self.planned}, "
+                f"reused={self.reused}, ran={self.ran}, failed={self.failed}"
+                + (", stopped at the deadline" if self.stopped else "") + ")")
+
+
+def make_executor(kind: str = "local", *, jobs: int | None = None, scheduler: str | None = None,
+                  workers: int | None = None) -> Executor:
+    """The executor the command line's options name: ``local`` (``jobs`` processes) or
+    ``dask`` (``scheduler`` address of a running cluster, or ``workers`` for a local one)."""
+    if kind == "local":
+        if scheduler is not None or workers is not None:
+            raise UserError("--scheduler and --workers are options of the Dask executor; add "
+                            "--executor dask")
+        return LocalExecutor(jobs)
+    if kind == "dask":
+        if jobs is not None:
+            raise UserError("--jobs is for the local executor; with --executor dask the "
+                            "cluster's workers run the cells (--workers N for a local cluster)")
+        from harness.execution.dask_cluster import DaskExecutor  # needs the optional Dask
+
+        return DaskExecutor(scheduler=scheduler, workers=workers)
+    raise UserError(f"unknown executor '{kind}'; choose local or dask")
+
+
+def run_suite(path: str | Path, *, out: str | Path | None = None, jobs: int | None = None,
+              fresh: bool = False, retry_failed: bool = False, executor: Executor | None = None,
+              progress: bool | None = None, echo: Echo | None = None,
+              command: str | None = None, write_outputs: bool = True,
+              select: Callable[[Cell], bool] | None = None,
+              deadline: float | None = None) -> RunResult:
+    """Run every cell of a suite not already in its results store, then write the outputs.
+
+    Parameters
+    ----------
+    path : the suite file (TOML).
+    out : results folder; default ``results/<suite name>``.
+    jobs : worker processes for the local executor (default: all cores).
+    fresh : forget stored cells and start over.
+    retry_failed : run again the cells stored as errors or timeouts.
+    executor : an executor (default: `LocalExecutor` with ``jobs``); opened and closed here.
+    progress : show a progress bar (default: when stderr is a terminal).
+    echo : where one-line notes go (default: stderr).
+    command : the command line to record in the provenance (default: ``sys.argv``).
+    write_outputs : write tables and plots at the end (``woodlot report`` can do it later).
+    select : run only the cells for which this returns True (the plan keeps them all).
+    deadline : a ``time.perf_counter()`` value; no cell starts after it and running cells are
+        stopped at it (recorded as timeouts). `RunResult.stopped` says whether it was reached.
+
+    Nothing is written before the suite and every dataset pass their checks.
+    """
+    echo = echo or stderr_echo
+    executor = executor or LocalExecutor(jobs)
+    with session(path, out=out, command=command, executor=executor, fresh=fresh,
+                 timing=TIMING, echo=echo) as s:
+        store, plan = s.store, s.plan
+        result = RunResult(folder=s.folder, planned=len(plan.cells), reused=0, notes=s.notes)
+        done = store.finished_keys(include_failed=not retry_failed)
+        todo = [c for c in plan.cells if c.key not in done and (select is None or select(c))]
+        result.reused = len(plan.cells) - len(todo)
+        store.set_plan(c.key for c in plan.cells)
+        bar = Progress(len(todo), enabled=progress)
+        try:
+            timeout = s.suite.protocol.cell_timeout
+            if deadline is not None:
+                left = max(0.5, deadline - time.perf_counter())
+                timeout = left if timeout is None else min(timeout, left)
+            for row in executor.run(todo, plan.by_fingerprint, timeout):
+                store.put(row, s.run)
+                result.ran += 1
+                result.failed += row["status"] != OK
+                bar.step(row["status"] == OK)
+                if deadline is not None and time.perf_counter() > deadline \
+                        and result.ran < len(todo):
+                    result.stopped = True
+                    break
+        finally:
+            bar.close()
+        executor.close()  # nothing of the accuracy cells runs while speedup points are timed
+        if s.suite.speedup is not None:  # the speedup points run alone, after every cell
+            result.speedup = measure_points(s, s.suite.speedup, retry_failed=retry_failed,
+                                            progress=progress, echo=echo)
+    if write_outputs:
+        result.outputs = write_report(s.folder)
+    return result

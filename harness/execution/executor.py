@@ -1,0 +1,39 @@
+"""The interface every executor implements. An executor is used as a context manager: it is
+opened before anything is written (an unreachable cluster fails there), describes where the
+cells run for the provenance, runs cells yielding each row as it finishes, and is closed
+whatever happens, so that a cluster woodlot started never outlives the command."""
+
+from __future__ import annotations
+
+from abc import ABC, abstractmethod
+from typing import Any, Iterator
+
+from harness.datasets import Dataset
+from harness.work_units import Cell
+
+
+class Executor(ABC):
+    name: str = ""
+    jobs: int | None = None  # worker processes, when the executor knows them
+
+    def __enter__(self) -> "Executor":
+        self.open()
+        return self
+
+    def __exit__(self, *exc) -> None:
+        self.close()
+
+    def open(self) -> None:
+        """Get ready to run (reach a cluster, check its workers); `UserError` if impossible."""
+
+    def describe(self) -> dict[str, Any]:
+        """What the run's provenance records about where the cells ran."""
+        return {"executor": self.name, "jobs": self.jobs}
+
+    @abstractmethod
+    def run(self, cells: list[Cell], datasets: dict[str, Dataset],
+            timeout: float | None) -> Iterator[dict]:
+        """Run ``cells`` (``datasets`` keyed by fingerprint); yield each row as it finishes."""
+
+    def close(self) -> None:
+        """Release everything `open` and `run` started."""

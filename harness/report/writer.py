@@ -1,0 +1,193 @@
+"""Writing a results folder's report from its store alone: ``tables/*.csv`` and ``*.md``,
+``plots/*.png``, ``provenance.json`` and ``report.html``. The only module of the report that
+writes files; every file is written through a temporary name (`harness.files`)."""
+
+from __future__ import annotations
+
+import io
+import json
+import shutil
+import time
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import pandas as pd
+from matplotlib.figure import Figure
+
+from harness.analysis.results import ok_cells, strategy_means
+from harness.analysis.speedup import summarize
+from harness.analysis.verdict import Verdict, verdict
+from harness.files import write_bytes, write_text
+from harness.report import plots, speedup_plots, tables, words
+from harness.report.cd_diagram import cd_figure
+from harness.report.page import REPORT_NAME, PageContent, render
+from harness.report.render import Table, to_markdown
+from harness.store import Store
+
+SUMMARY_NAME = "summary.md"
+OUTPUT_FILES = ("provenance.json", SUMMARY_NAME, REPORT_NAME)
+OUTPUT_FOLDERS = ("tables", "plots")
+DPI = 110
+
+
+@dataclass
+class Outputs:
+    """What `write_report` wrote and the analysis behind it."""
+
+    folder: Path
+    files: list[Path] = field(default_factory=list)
+    verdict: Verdict | None = None        # when the store has accuracy cells
+    speedup: pd.DataFrame | None = None   # one line per dataset × strategy, when it has speedup points
+    tables: dict[str, Table] = field(default_factory=dict)
+
+
+def clear_outputs(folder: Path) -> None:
+    """Remove everything `write_report` writes (before a fresh run)."""
+    for name in OUTPUT_FILES:
+        (folder / name).unlink(missing_ok=True)
+    for sub in OUTPUT_FOLDERS:
+        shutil.rmtree(folder / sub, ignore_errors=True)
+
+
+def png(fig: Figure, dpi: int = DPI) -> bytes:
+    buf = io.BytesIO()
+    fig.savefig(buf, format="png", dpi=dpi)
+    return buf.getvalue()
+
+
+def executor_text(prov: dict) -> str:
+    """Where a run's cells ran, in words, from its provenance."""
+    name, dask = prov.get("executor", "–"), prov.get("dask")
+    if not dask:
+        return f"{name}, {prov.get('jobs', '–')} jobs"
+    hosts = dask.get("worker_hosts", {})
+    return (f"{name}: {dask.get('cluster')} at {dask.get('scheduler')}, "
+            f"{sum(hosts.values())} worker processes on "
+            + ", ".join(f"{host} ({n})" for host, n in hosts.items()))
+
+
+def _provenance_rows(run: dict | None, n_cells: int, folder: Path) -> list[tuple[str, object]]:
+    run = run or {}
+    prov = run.get("provenance", {}) or {}
+
+    def when(t):
+        return time.strftime("%Y-%m-%d %H:%M:%S", time.localtime(t)) if t else "–"
+    return [("suite", prov.get("suite", run.get("suite"))),
+            ("command", prov.get("command", run.get("command"))),
+            ("run", f"{run.get('run', '–')}: started {when(run.get('started'))}, finished "
+                    f"{when(run.get('finished'))} ({run.get('state')})"),
+            ("cells in the latest plan", n_cells),
+            ("executor", executor_text(prov)),
+            ("timing", prov.get("timing")),
+            ("machine", f"{prov.get('cpu_model', '?')}, {prov.get('cores', '?')} cores, "
+                        f"{prov.get('platform', '?')}, host {prov.get('host', '?')}"),
+            ("load average (1, 5, 15 min)", f"before {prov.get('load_average')}, after "
+                                            f"{prov.get('load_average_after')}"),
+            ("Python", prov.get("python")),
+            ("libraries", ", ".join(f"{k} {v}" for k, v in prov.get("libraries", {}).items())),
+            ("results folder", str(folder))]
+
+
+def _dataset_table(datasets: pd.DataFrame, frame: pd.DataFrame,
+                   v: Verdict | None) -> pd.DataFrame:
+    if datasets.empty or frame.empty or "fingerprint" not in datasets:
+        return pd.DataFrame()
+    fps = set(frame["fingerprint"].str[:12]) | set(frame["fingerprint"])
+    d = datasets[datasets["fingerprint"].isin(fps)].drop_duplicates("dataset")
+    if d.empty:
+        return pd.DataFrame()
+    keep = [c for c in ("dataset", "task", "rows", "columns", "classes", "categorical",
+                        "missing_share", "source") if c in d.columns]
+    d = d[keep].copy()
+    if "classes" in d:
+        d["classes"] = [("" if pd.isna(c) else str(int(c))) for c in d["classes"]]
+    if v is not None:
+        d["judged on"] = d["dataset"].map(v.primary)
+    return d.reset_index(drop=True)
+
+
+def _verdict_figures(v: Verdict) -> dict[str, Figure]:
+    if not v.tested:
+        return {}
+    n = len(v.matrix)
+    figs = {"critical_difference": cd_figure(v.ranks, v.cd, v.nemenyi_groups,
+                                             f"Nemenyi critical difference, α = {v.alpha:g}, "
+                                             f"{n} datasets"),
+            "wilcoxon_holm_groups": cd_figure(v.ranks, None, v.wilcoxon_groups,
+                                              f"Not told apart by Wilcoxon–Holm, "
+                                              f"α = {v.alpha:g}, {n} datasets")}
+    fig = plots.rank_vs_fit_time(v.ranks, v.costs, n)
+    if fig is not None:
+        figs["rank_vs_fit_time"] = fig
+    return figs
+
+
+def write_report(folder: str | Path) -> Outputs:
+    """Tables (CSV + Markdown), plots, provenance and report.html for the folder's latest
+    plan, from its store alone."""
+    folder = Path(folder)
+    out = Outputs(folder)
+    with Store(folder, create=False) as store:
+        frame = store.cells_frame()
+        run = store.last_run()
+        datasets = store.dataset_summaries()
+        points_frame = store.speedup_frame()
+        speedup_runs = store.run_provenance(points_frame["run"]) if not points_frame.empty \
+            else {}
+    provenance = (run or {}).get("provenance", {})
+    out.files.append(write_text(folder / "provenance.json", json.dumps(provenance, indent=2)))
+    figures: dict[str, Figure] = {}
+    found: list[Table] = []
+    if not frame.empty:
+        v = verdict(frame, provenance.get("metrics"))
+        out.verdict = v
+        found += [tables.scores(frame), tables.costs(frame)]
+        fails = tables.failures(frame)
+        if not fails.data.empty:
+            found.append(fails)
+        if not v.intervals.empty:
+            found += [tables.intervals(v), tables.pairs(v), tables.pareto(v),
+                      tables.ranks(v, frame)]
+            if v.tested:
+                found += [tables.tests(v), tables.pairs_across(v)]
+        figures.update(_verdict_figures(v))
+        out.files.append(write_text(folder / SUMMARY_NAME, "# The short answer\n\n" + "".join(
+            f"- {s}\n" for s in words.summary(v))))
+        for name, fig in (("score_vs_fit_time", plots.score_vs_fit_time(
+                              strategy_means(frame, v.primary))),
+                          ("ensemble_size", plots.size_curves(ok_cells(frame), v.primary))):
+            if fig is not None:
+                figures[name] = fig
+    if not points_frame.empty:
+        runs = [p.get("speedup", {}) for _, p in sorted(speedup_runs.items())
+                  if p.get("speedup")]
+        margin = float(runs[-1].get("noise_margin", 0.15)) if runs else 0.15
+        points, fits = summarize(points_frame, noise_margin=margin)
+        found += [tables.speedup_points(points, runs, margin), tables.serial_fraction(fits)]
+        out.speedup = tables.speedup_summary(points, fits)
+        for name, fig in (("speedup", speedup_plots.speedup_plot(points, fits)),
+                          ("fit_time_vs_workers", speedup_plots.fit_time_plot(points, fits))):
+            if fig is not None:
+                figures[name] = fig
+    for t in found:
+        out.tables[t.name] = t
+        out.files.append(write_text(folder / "tables" / f"{t.name}.csv",
+                                    t.data.to_csv(index=False)))
+        out.files.append(write_text(folder / "tables" / f"{t.name}.md", to_markdown(t)))
+    images = {name: png(fig, dpi=150 if name in ("critical_difference",
+                                                 "wilcoxon_holm_groups") else DPI)
+              for name, fig in figures.items()}
+    for name, data in images.items():
+        out.files.append(write_bytes(folder / "plots" / f"{name}.png", data))
+    content = PageContent(
+        suite=(run or {}).get("suite") or folder.name,
+        version=provenance.get("libraries", {}).get("woodlot", ""), n_cells=len(frame),
+        n_datasets=frame["dataset"].nunique() if not frame.empty else 0,
+        n_strategies=frame["strategy"].nunique() if not frame.empty else 0,
+        verdict=out.verdict, tables=out.tables, images=images,
+        datasets=_dataset_table(datasets, frame, out.verdict),
+        failures=out.tables["failures"].data if "failures" in out.tables else pd.DataFrame(),
+        provenance=_provenance_rows(run, len(frame), folder),
+        suite_text=(run or {}).get("suite_text") or "", has_speedup=not points_frame.empty)
+    out.files.append(write_text(folder / REPORT_NAME, render(content)))
+    return out
