@@ -16,6 +16,7 @@ from typing import Any
 from sklearn.metrics import get_scorer_names
 
 from harness.datasets import SOURCES, DatasetSpec
+from harness.datasets.openml import expand_benchmark_suite
 from harness.errors import UserError, closest
 from harness.strategies import Strategy, resolve
 
@@ -272,8 +273,6 @@ def _datasets(entries: Any, path: Path, expand: bool) -> list[DatasetSpec]:
         if src.check is not None:
             src.check(spec)
         if expand and source == "openml" and "suite" in options:
-            from harness.datasets.openml_source import expand_benchmark_suite
-
             for member in expand_benchmark_suite(spec):
                 if member.name in seen:
                     raise UserError(f"the expanded name '{member.name}' is used by an earlier "

@@ -21,7 +21,7 @@ import pytest
 from tests import openml_cache as oc  # noqa: E402
 
 from harness.datasets import SOURCES  # noqa: E402
-from harness.datasets import openml_source as src  # noqa: E402
+from harness.datasets import openml as src  # noqa: E402
 from harness.datasets.spec import DatasetSpec  # noqa: E402
 from harness.errors import UserError  # noqa: E402
 
@@ -208,7 +208,7 @@ def test_task_with_uncached_data_offline(seeded):
     assert "field 'task'" in msg and "woodlot fetch" in msg
 
 
-def test_is_cached_and_fetch_need_no_server_when_everything_is_there(seeded):
+def test_is_cached_and_download_need_no_server_when_everything_is_there(seeded):
     assert src.is_cached(seeded.spec(dataset=4242))
     assert src.is_cached(seeded.spec(task=77))
     assert not src.is_cached(seeded.spec(dataset=5555))
@@ -217,14 +217,14 @@ def test_is_cached_and_fetch_need_no_server_when_everything_is_there(seeded):
     assert not src.is_cached(seeded.spec(suite=9001))  # 79 kept, its data missing
     assert not src.is_cached(seeded.spec(suite=4711))
     said = []
-    assert src.fetch(seeded.spec(task=77), progress=said.append) == []
-    assert src.fetch(seeded.spec(suite=9001, max_rows=100), progress=said.append) == []
+    assert src.download(seeded.spec(task=77), progress=said.append) == []
+    assert src.download(seeded.spec(suite=9001, max_rows=100), progress=said.append) == []
     assert any("already cached" in line for line in said)
 
 
-def test_fetch_without_network_is_one_clear_error(seeded):
+def test_download_without_network_is_one_clear_error(seeded):
     with pytest.raises(UserError) as err:
-        src.fetch(seeded.spec(name="meadow", task=79))
+        src.download(seeded.spec(name="meadow", task=79))
     msg = str(err.value)
     assert "could not download OpenML dataset 4244" in msg and "after 2 attempts" in msg
     assert "dataset 'meadow' (entry 2): field 'task'" in msg
@@ -297,7 +297,7 @@ def test_unknown_id_is_a_user_error_naming_the_field(server, tmp_path):
     assert server.hits == ["/api/v1/xml/data/999999"]  # a definite answer is not retried
     spec = DatasetSpec("gone", "openml", {"task": 888888}, tmp_path / "s.toml", 4)
     with pytest.raises(UserError, match=r"field 'task': OpenML task 888888 does not exist"):
-        src.fetch(spec)
+        src.download(spec)
 
 
 def test_server_trouble_is_retried_then_reported_once(server, tmp_path, monkeypatch):
@@ -311,7 +311,7 @@ def test_server_trouble_is_retried_then_reported_once(server, tmp_path, monkeypa
     assert "after 3 attempts" in msg and "woodlot fetch" in msg and "\n" not in msg
 
 
-def test_fetch_downloads_into_the_cache_then_loads_offline(server, tmp_path):
+def test_download_fills_the_cache_then_loads_offline(server, tmp_path):
     t = oc.orchard(did=4250)
     staging = tmp_path / "staging"  # render the files, then serve them
     oc.write_dataset(staging, t)
@@ -328,7 +328,7 @@ def test_fetch_downloads_into_the_cache_then_loads_offline(server, tmp_path):
     spec = DatasetSpec("orchard", "openml", {"dataset": 4250}, tmp_path / "s.toml", 1)
     assert not src.is_cached(spec)
     said: list[str] = []
-    assert src.fetch(spec, progress=said.append) == ["dataset/4250"]
+    assert src.download(spec, progress=said.append) == ["dataset/4250"]
     assert said == ["orchard: downloading OpenML dataset 4250"]
     assert src.is_cached(spec)
     assert (server.cache / "datasets" / "4250" / "dataset.arff").is_file()
@@ -336,7 +336,7 @@ def test_fetch_downloads_into_the_cache_then_loads_offline(server, tmp_path):
     n = len(server.hits)
     ds = src.load_openml(spec)
     assert ds.n_rows == 60 and ds.categorical == ("soil",)
-    assert src.fetch(spec) == [] and len(server.hits) == n
+    assert src.download(spec) == [] and len(server.hits) == n
 
 
 # --------------------------------------------------------------------------- entry checks
