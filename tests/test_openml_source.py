@@ -311,6 +311,20 @@ def test_server_trouble_is_retried_then_reported_once(server, tmp_path, monkeypa
     assert "after 3 attempts" in msg and "woodlot fetch" in msg and "\n" not in msg
 
 
+def test_clients_own_retries_are_off_during_a_call_and_restored_after(server, tmp_path,
+                                                                     monkeypatch):
+    import openml
+    openml.config.set_retry_policy("human", 4)  # the client would try 4 times, waiting
+    monkeypatch.setenv("WOODLOT_OPENML_ATTEMPTS", "2")
+    server.routes["/api/v1/xml/data/32"] = (503, "Service Unavailable")
+    spec = DatasetSpec("busy", "openml", {"dataset": 32}, tmp_path / "s.toml", 1)
+    with pytest.raises(UserError, match="after 2 attempts"):
+        src.load_openml(spec)
+    assert server.hits == ["/api/v1/xml/data/32"] * 2
+    after = openml.config.get_config_as_dict()
+    assert after["retry_policy"] == "human" and after["connection_n_retries"] == 4
+
+
 def test_download_fills_the_cache_then_loads_offline(server, tmp_path):
     t = oc.orchard(did=4250)
     staging = tmp_path / "staging"  # render the files, then serve them

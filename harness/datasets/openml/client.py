@@ -72,12 +72,12 @@ def retry_policy() -> tuple[int, float]:
 def _one_try_per_call() -> Iterator[None]:
     """Switch off the client's own retry loop (its waits are long); we retry around it."""
     config = openml_package().config
-    before = config.connection_n_retries
-    config.connection_n_retries = 1
+    before = config.get_config_as_dict()
+    config.set_retry_policy(before["retry_policy"], 1)
     try:
         yield
     finally:
-        config.connection_n_retries = before
+        config.set_retry_policy(before["retry_policy"], before["connection_n_retries"])
 
 
 def _transient(exc: BaseException) -> bool:

@@ -123,24 +123,19 @@ def _load_dataset_entry(spec: DatasetSpec) -> Dataset:
 def _task_splits(spec: DatasetSpec, task, n_rows: int) -> tuple[PredefinedSplit, ...]:
     """The task's published splits, checked against the table's rows."""
     what = f"the splits of OpenML task {int(task.task_id)}"
-    split = get_splits(spec, task, purpose="load")
     out = []
-    for repeat in sorted(split.split):
-        for fold in sorted(split.split[repeat]):
-            samples = split.split[repeat][fold]
-            train, test = samples[max(samples)]  # learning-curve samples: the full training set
-            train = np.asarray(train, dtype=np.int64)
-            test = np.asarray(test, dtype=np.int64)
-            for part, idx in (("training", train), ("test", test)):
-                if idx.size == 0 or idx.min() < 0 or idx.max() >= n_rows:
-                    raise UserError(f"{what}: repeat {repeat} fold {fold} has {part} rows "
-                                    f"outside the table's {n_rows} rows", file=spec.where,
-                                    field="task")
-            if np.intersect1d(train, test).size:
-                raise UserError(f"{what}: repeat {repeat} fold {fold} uses some rows for both "
-                                "training and testing", file=spec.where, field="task")
-            out.append(PredefinedSplit(repeat=int(repeat), fold=int(fold), train=train,
-                                       test=test))
+    for (repeat, fold), (train, test) in get_splits(spec, task, purpose="load").items():
+        train = np.asarray(train, dtype=np.int64)
+        test = np.asarray(test, dtype=np.int64)
+        for part, idx in (("training", train), ("test", test)):
+            if idx.size == 0 or idx.min() < 0 or idx.max() >= n_rows:
+                raise UserError(f"{what}: repeat {repeat} fold {fold} has {part} rows "
+                                f"outside the table's {n_rows} rows", file=spec.where,
+                                field="task")
+        if np.intersect1d(train, test).size:
+            raise UserError(f"{what}: repeat {repeat} fold {fold} uses some rows for both "
+                            "training and testing", file=spec.where, field="task")
+        out.append(PredefinedSplit(repeat=repeat, fold=fold, train=train, test=test))
     return tuple(out)
 
 

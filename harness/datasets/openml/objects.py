@@ -9,6 +9,8 @@ from __future__ import annotations
 import re
 from typing import Any
 
+import numpy as np
+
 from harness.datasets.base import CLASSIFICATION, REGRESSION
 from harness.datasets.openml.cache import (cached_task, data_files, dataset_folder,
                                            prefer_cached_arff, task_folder)
@@ -77,7 +79,8 @@ def get_task(spec: DatasetSpec, tid: int, *, purpose: Purpose, qualities: bool =
     """The client's task object (description and its dataset's metadata, no data or splits)."""
     openml = openml_package()
     cached = cached_task(tid)
-    if cached is not None and cached.type_id not in ("1", "2"):
+    supported = {str(openml.tasks.TaskType[name].value) for name in SUPPORTED_TASK_TYPES}
+    if cached is not None and cached.type_id not in supported:
         # refuse from the cached description: the client would delete it for some types
         raise UnsupportedTaskType(spec, tid, cached.type_name)
     if purpose == "check":
@@ -104,12 +107,17 @@ def get_task(spec: DatasetSpec, tid: int, *, purpose: Purpose, qualities: bool =
     return task
 
 
-def get_splits(spec: DatasetSpec, task, *, purpose: Purpose):
-    """The task's published splits (the client's split object), downloaded when missing."""
+def get_splits(spec: DatasetSpec, task, *,
+               purpose: Purpose) -> dict[tuple[int, int], tuple[np.ndarray, np.ndarray]]:
+    """The task's published splits, (repeat, fold) → (training rows, test rows), downloaded
+    when missing. Of learning-curve samples, the last (the full training set) is kept."""
     tid = int(task.task_id)
     what = f"the splits of OpenML task {tid}"
     try:
-        return remote(spec, "task", what, task.download_split, purpose=purpose)
+        repeats, folds, samples = remote(spec, "task", what, task.get_split_dimensions,
+                                         purpose=purpose)
+        return {(r, f): task.get_train_test_split_indices(fold=f, repeat=r, sample=samples - 1)
+                for r in range(repeats) for f in range(folds)}
     except READ_ERRORS as exc:
         raise damaged(spec, "task", what, task_folder(tid), exc) from None
 
@@ -122,8 +130,7 @@ def read_data(spec: DatasetSpec, field: str, ds, target: str):
         with prefer_cached_arff(ds.dataset_id):
             return remote(spec, field, what,
                           lambda: ds.get_data(target=target, include_row_id=False,
-                                              include_ignore_attribute=False,
-                                              dataset_format="dataframe"),
+                                              include_ignore_attribute=False),
                           purpose="load")
     except READ_ERRORS as exc:
         raise damaged(spec, field, what, dataset_folder(ds.dataset_id), exc) from None
