@@ -15,6 +15,7 @@ at once instead of reaching a network.
 from __future__ import annotations
 
 import hashlib
+import json
 import os
 from contextlib import contextmanager
 from dataclasses import dataclass, field
@@ -305,7 +306,6 @@ def write_task(cache: Path, tid: int, t: Table, *, type_id: int = 1, repeats: in
 def write_suite(cache: Path, key: int | str, suite_id: int, alias: str, tasks: list[int],
                 name: str = "Orchard benchmark") -> Path:
     """woodlot's record of a benchmark suite's task list (see the module docstring)."""
-    import json
     d = cache / "suites"
     d.mkdir(parents=True, exist_ok=True)
     record = {"id": suite_id, "alias": alias, "name": name, "tasks": tasks, "unsupported": {}}

@@ -9,7 +9,6 @@ from __future__ import annotations
 import hashlib
 import http.server
 import json
-import sys
 import threading
 import time
 from pathlib import Path

@@ -5,7 +5,6 @@ The server configured for these tests is a closed loopback port, so nothing reac
 
 from __future__ import annotations
 
-import numpy as np
 import pytest
 
 from harness import load_results, run_suite

@@ -61,7 +61,6 @@ class TaskSummary:
     task_id: int
     dataset_id: int
     dataset_name: str
-    learning: str
     rows: int | None
     columns: int
     classes: int | None
@@ -78,9 +77,8 @@ def _task_summary(spec: DatasetSpec, tid: int, *, purpose: Purpose,
     qualities = (ds.qualities or {}) if data_files(ds.dataset_id).qualities else {}
     dropped = set(dropped_by_openml(ds)) | {task.target_name}
     columns = sum(1 for f in ds.features.values() if f.name not in dropped)
-    learning = learning_type(task)
     classes = None
-    if learning == CLASSIFICATION:
+    if learning_type(task) == CLASSIFICATION:
         value = qualities.get("NumberOfClasses")
         if value is not None and np.isfinite(value) and value > 0:
             classes = int(value)
@@ -90,7 +88,7 @@ def _task_summary(spec: DatasetSpec, tid: int, *, purpose: Purpose,
     rows = qualities.get("NumberOfInstances")
     rows = int(rows) if rows is not None and np.isfinite(rows) else None
     return TaskSummary(task_id=tid, dataset_id=int(ds.dataset_id), dataset_name=str(ds.name),
-                       learning=learning, rows=rows, columns=columns, classes=classes)
+                       rows=rows, columns=columns, classes=classes)
 
 
 def _passes(spec: DatasetSpec, s: TaskSummary) -> bool:

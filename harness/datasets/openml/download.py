@@ -29,9 +29,7 @@ def is_cached(spec: DatasetSpec) -> bool:
         return task_cached(int(spec.options["task"]))
     try:
         kept = suite_members(spec, purpose="check")
-    except NotCached:
-        return False
-    except UserError:
+    except (NotCached, UserError):  # not cached, or the cached task list is damaged
         return False
     return all(task_cached(s.task_id) for s in kept)
 

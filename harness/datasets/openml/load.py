@@ -15,7 +15,7 @@ import pandas as pd
 from harness.datasets.base import (CLASSIFICATION, REGRESSION, TASKS, Dataset, PredefinedSplit,
                                    finish)
 from harness.datasets.openml.client import server
-from harness.datasets.openml.entries import EXPECT_KEYS, check_openml_entry, entry_kind
+from harness.datasets.openml.entries import check_openml_entry, entry_kind
 from harness.datasets.openml.objects import (as_list, dropped_by_openml, get_dataset,
                                              get_splits, get_task, learning_type, read_data)
 from harness.datasets.spec import DatasetSpec
@@ -61,27 +61,25 @@ def _learning_type(spec: DatasetSpec, target_feature) -> str:
     return REGRESSION if target_feature.data_type == "numeric" else CLASSIFICATION
 
 
-def _check_expect(spec: DatasetSpec, dataset: Dataset, openml_name: str, what: str) -> None:
-    expect = spec.options.get("expect") or {}
-    found = {"name": openml_name, "rows": dataset.n_rows, "columns": dataset.n_columns}
-    for key in EXPECT_KEYS:
-        if key in expect and expect[key] != found[key]:
-            if key == "name":
-                wanted, got = repr(expect[key]), repr(found[key])
-            else:
-                wanted, got = f"{expect[key]} {key}", f"{found[key]} {key}"
-            note = (" (feature columns, not counting the target and the ignored, row-id and "
-                    "'drop' columns)") if key == "columns" else ""
-            raise UserError(f"expected {wanted}, found {got} in {what}{note}; check the id or "
-                            "update 'expect'", file=spec.where, field=f"expect.{key}")
-
-
-def _check_expect_name_early(spec: DatasetSpec, name: str, what: str) -> None:
-    """A wrong name is known before the data are read; say so before reading them."""
+def _check_expect_name(spec: DatasetSpec, name: str, what: str) -> None:
+    """``expect.name``, checked before the data are read."""
     expect = spec.options.get("expect") or {}
     if "name" in expect and expect["name"] != name:
         raise UserError(f"expected {expect['name']!r}, found {name!r} in {what}; check the id "
                         "or update 'expect'", file=spec.where, field="expect.name")
+
+
+def _check_expect_size(spec: DatasetSpec, dataset: Dataset, what: str) -> None:
+    """``expect.rows`` and ``expect.columns``, checked on the finished dataset."""
+    expect = spec.options.get("expect") or {}
+    found = {"rows": dataset.n_rows, "columns": dataset.n_columns}
+    for key, value in found.items():
+        if key in expect and expect[key] != value:
+            note = (" (feature columns, not counting the target and the ignored, row-id and "
+                    "'drop' columns)") if key == "columns" else ""
+            raise UserError(f"expected {expect[key]} {key}, found {value} {key} in {what}{note}; "
+                            "check the id or update 'expect'", file=spec.where,
+                            field=f"expect.{key}")
 
 
 def _meta(ds, task=None, target=None, dropped=()) -> dict[str, Any]:
@@ -109,14 +107,14 @@ def _load_dataset_entry(spec: DatasetSpec) -> Dataset:
                             field="target")
         target = default[0]
     what = f"OpenML dataset {did} ('{ds.name}')"
-    _check_expect_name_early(spec, ds.name, what)
+    _check_expect_name(spec, ds.name, what)
     X, y, categorical, target_feature = _table(spec, "dataset", ds, target)
     dataset = finish(spec.name, X, y, source=f"openml:dataset/{did}", where=spec.where,
                      task=_learning_type(spec, target_feature),
                      categorical=spec.options.get("categorical", categorical),
                      drop=spec.options.get("drop", ()),
                      meta=_meta(ds, target=target, dropped=dropped_by_openml(ds)))
-    _check_expect(spec, dataset, ds.name, what)
+    _check_expect_size(spec, dataset, what)
     return dataset
 
 
@@ -144,7 +142,7 @@ def _load_task_entry(spec: DatasetSpec) -> Dataset:
     task = get_task(spec, tid, purpose="load")
     ds = get_dataset(spec, "task", task.dataset_id, data=True, qualities=False, purpose="load")
     what = f"OpenML task {tid} (dataset {ds.dataset_id} '{ds.name}')"
-    _check_expect_name_early(spec, ds.name, what)
+    _check_expect_name(spec, ds.name, what)
     X, y, categorical, _ = _table(spec, "task", ds, task.target_name)
     splits = _task_splits(spec, task, len(X))
     dataset = finish(spec.name, X, y, source=f"openml:task/{tid}", where=spec.where,
@@ -153,7 +151,7 @@ def _load_task_entry(spec: DatasetSpec) -> Dataset:
                      drop=spec.options.get("drop", ()), splits=splits,
                      meta=_meta(ds, task=task, target=task.target_name,
                                 dropped=dropped_by_openml(ds)))
-    _check_expect(spec, dataset, ds.name, what)
+    _check_expect_size(spec, dataset, what)
     return dataset
 
 
