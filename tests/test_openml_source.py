@@ -1,11 +1,13 @@
 """The OpenML source, run through the real openml client against a cache seeded on disk.
 
 No test reaches the OpenML server: the configured server is a closed loopback port (or, for
-the tests of server answers, a small HTTP server on loopback started by the test).
+the tests of server answers, a small HTTP server on loopback started by the test). The
+``seeded`` fixture (conftest.py) holds the cache of `tests.openml_cache.Seeded`.
 """
 
 from __future__ import annotations
 
+import ast
 import hashlib
 import http.server
 import json
@@ -23,33 +25,6 @@ from harness.datasets import SOURCES  # noqa: E402
 from harness.datasets import openml as src  # noqa: E402
 from harness.datasets.spec import DatasetSpec  # noqa: E402
 from harness.errors import UserError  # noqa: E402
-
-
-class Seeded:
-    def __init__(self, root: Path, cache: Path):
-        self.root, self.cache = root, cache
-        self.suite_file = root / "suites" / "trees.toml"
-        self.orchard, self.river, self.meadow = oc.orchard(), oc.river(), oc.meadow()
-        oc.write_dataset(cache, self.orchard)
-        oc.write_dataset(cache, self.river)
-        oc.write_dataset(cache, self.meadow, data=False)  # metadata only
-        self.splits77 = oc.write_task(cache, 77, self.orchard, seed=5)
-        self.splits78 = oc.write_task(cache, 78, self.river, type_id=2, repeats=1, folds=4)
-        oc.write_task(cache, 79, self.meadow, splits=False)
-        oc.write_task(cache, 80, self.orchard, type_id=5)
-        oc.write_task(cache, 81, self.orchard, type_id=4)
-        oc.write_suite(cache, 9001, 9001, "orchard-bench", [77, 78, 79, 80])
-        oc.write_suite(cache, "orchard-bench", 9001, "orchard-bench", [77, 78, 79, 80])
-
-    def spec(self, name="orchard", position=2, **options) -> DatasetSpec:
-        return DatasetSpec(name=name, source="openml", options=options,
-                           suite_file=self.suite_file, position=position)
-
-
-@pytest.fixture
-def seeded(tmp_path):
-    with oc.openml_configured(tmp_path) as cache:
-        yield Seeded(tmp_path, cache)
 
 
 # ------------------------------------------------------------------------ cache location
@@ -496,3 +471,43 @@ def test_cached_arff_copy_is_used_when_the_parquet_file_is_missing(seeded):
     assert ds.categorical == ("season", "station") and ds.n_rows == 60
     assert not (d / "dataset_4243.pq").exists()
     assert "OPENML_SKIP_PARQUET" not in __import__("os").environ
+
+
+# ---------------------------------------------------------------- the subpackage's shape
+
+PACKAGE = Path(src.__file__).parent
+ROOT = PACKAGE.parents[2]
+
+
+def _imported(path: Path) -> list[tuple[str, list[str]]]:
+    """(module, names) of each ``from module import names`` in a file."""
+    return [(node.module or "", [a.name for a in node.names])
+            for node in ast.walk(ast.parse(path.read_text(encoding="utf8")))
+            if isinstance(node, ast.ImportFrom)]
+
+
+def test_only_the_cache_module_knows_the_cache_layout():
+    layout = ("get_cache_directory", '/ "', '/ f"', "description.xml", "features.xml",
+              "qualities.xml", "dataset.arff", ".pq", "task.xml", "datasplits.arff", ".json")
+    for path in PACKAGE.glob("*.py"):
+        if path.name != "cache.py":
+            text = path.read_text(encoding="utf8")
+            assert [w for w in layout if w in text] == [], path.name
+
+
+def test_subpackage_imports_form_no_cycle_and_keep_private_names_inside():
+    graph = {p.stem: {m.rsplit(".", 1)[1] for m, _ in _imported(p)
+                      if m.startswith(f"{src.__name__}.")}
+             for p in PACKAGE.glob("*.py")}
+    done: set[str] = set()
+    while len(done) < len(graph):  # peel off modules whose imports are all peeled off
+        ready = {m for m, deps in graph.items() if m not in done and deps <= done}
+        assert ready, f"import cycle among {sorted(set(graph) - done)}"
+        done |= ready
+    outside = [p for d in ("harness", "tests") for p in (ROOT / d).rglob("*.py")
+               if PACKAGE not in p.parents]
+    assert len(outside) > 10
+    for path in outside:
+        for module, names in _imported(path):
+            if module.startswith(src.__name__):
+                assert [n for n in names if n.startswith("_")] == [], path

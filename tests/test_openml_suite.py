@@ -5,18 +5,9 @@ The server configured for these tests is a closed loopback port, so nothing reac
 
 from __future__ import annotations
 
-import pytest
-
 from harness import load_results, run_suite
 from harness.cli import main
 from harness.suite import load_suite
-from tests.test_openml_source import Seeded, oc
-
-
-@pytest.fixture
-def seeded(tmp_path):
-    with oc.openml_configured(tmp_path) as cache:
-        yield Seeded(tmp_path, cache)
 
 
 def suite_file(seeded, body: str):
