@@ -16,7 +16,7 @@ from typing import Any
 from sklearn.metrics import get_scorer_names
 
 from harness.datasets import SOURCES, DatasetSpec
-from harness.datasets.openml_source import expand_benchmark_suite
+from harness.datasets.openml import expand_benchmark_suite
 from harness.errors import UserError, closest
 from harness.names import RULE, is_name
 from harness.strategies import Strategy, resolve

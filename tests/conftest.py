@@ -1,4 +1,5 @@
-"""Shared test helpers: small suite files written into a temporary folder."""
+"""Shared test helpers: small suite files written into a temporary folder, a seeded OpenML
+cache."""
 
 from __future__ import annotations
 
@@ -6,6 +7,8 @@ import textwrap
 from pathlib import Path
 
 import pytest
+
+from tests import openml_cache
 
 
 @pytest.fixture
@@ -33,6 +36,13 @@ def run_once(tmp_path_factory):
         return run_suite(path, out=tmp / "out", jobs=2, progress=False)
 
     return run
+
+
+@pytest.fixture
+def seeded(tmp_path):
+    """openml-python pointed at a fresh cache holding `tests.openml_cache.Seeded`."""
+    with openml_cache.openml_configured(tmp_path) as cache:
+        yield openml_cache.Seeded(tmp_path, cache)
 
 
 SMALL_SUITE = """

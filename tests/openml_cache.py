@@ -1,7 +1,8 @@
 """Seed an openml-python cache with small invented datasets, tasks and a suite, for offline tests.
 
 Files are written in the layout openml-python 0.15.1 reads back (its cache folder for the
-configured server, see ``openml.config.get_cache_directory()``):
+configured server, see ``openml.config.get_cache_directory()``), the layout
+``harness/datasets/openml/cache.py`` knows and pyproject.toml's openml range stands for:
 
     datasets/<id>/description.xml   features.xml   qualities.xml
     datasets/<id>/dataset.arff      (or dataset_<id>.pq when the description has a parquet_url)
@@ -15,6 +16,7 @@ at once instead of reaching a network.
 from __future__ import annotations
 
 import hashlib
+import json
 import os
 from contextlib import contextmanager
 from dataclasses import dataclass, field
@@ -24,6 +26,8 @@ from xml.sax.saxutils import escape
 
 import numpy as np
 import pandas as pd
+
+from harness.datasets.spec import DatasetSpec
 
 CLOSED_SERVER = "http://127.0.0.1:9/api/v1/xml"
 NS = 'xmlns:oml="http://openml.org/openml"'
@@ -37,7 +41,9 @@ def openml_configured(root: Path, server: str = CLOSED_SERVER, *,
     Writes openml's config file (``$XDG_CONFIG_HOME/openml/config``) naming ``server`` and a
     ``cachedir``; with ``cache_env`` also sets ``OPENML_CACHE_DIR`` (which takes precedence).
     The client reads both when ``openml.config._setup()`` runs, as it does on import. Yields
-    the per-server cache folder; restores the previous configuration afterwards.
+    the per-server cache folder; restores the previous configuration afterwards. (``_setup`` is
+    private; it is called here because no public call re-reads the config file and the
+    environment short of a fresh interpreter.)
     """
     import openml
 
@@ -305,10 +311,34 @@ def write_task(cache: Path, tid: int, t: Table, *, type_id: int = 1, repeats: in
 def write_suite(cache: Path, key: int | str, suite_id: int, alias: str, tasks: list[int],
                 name: str = "Orchard benchmark") -> Path:
     """woodlot's record of a benchmark suite's task list (see the module docstring)."""
-    import json
     d = cache / "suites"
     d.mkdir(parents=True, exist_ok=True)
     record = {"id": suite_id, "alias": alias, "name": name, "tasks": tasks, "unsupported": {}}
     path = d / f"{key}.json"
     path.write_text(json.dumps(record), encoding="utf8")
     return path
+
+
+class Seeded:
+    """The cache most tests share: datasets 4242 (ARFF), 4243 (Parquet) and 4244 (metadata
+    only); tasks 77, 78 (supervised), 79 (no data), 80 (clustering), 81 (data stream); suite
+    9001 alias ``orchard-bench`` of tasks 77-80."""
+
+    def __init__(self, root: Path, cache: Path):
+        self.root, self.cache = root, cache
+        self.suite_file = root / "suites" / "trees.toml"
+        self.orchard, self.river, self.meadow = orchard(), river(), meadow()
+        write_dataset(cache, self.orchard)
+        write_dataset(cache, self.river)
+        write_dataset(cache, self.meadow, data=False)  # metadata only
+        self.splits77 = write_task(cache, 77, self.orchard, seed=5)
+        self.splits78 = write_task(cache, 78, self.river, type_id=2, repeats=1, folds=4)
+        write_task(cache, 79, self.meadow, splits=False)
+        write_task(cache, 80, self.orchard, type_id=5)
+        write_task(cache, 81, self.orchard, type_id=4)
+        write_suite(cache, 9001, 9001, "orchard-bench", [77, 78, 79, 80])
+        write_suite(cache, "orchard-bench", 9001, "orchard-bench", [77, 78, 79, 80])
+
+    def spec(self, name="orchard", position=2, **options) -> DatasetSpec:
+        return DatasetSpec(name=name, source="openml", options=options,
+                           suite_file=self.suite_file, position=position)

@@ -1,15 +1,16 @@
 """The OpenML source, run through the real openml client against a cache seeded on disk.
 
 No test reaches the OpenML server: the configured server is a closed loopback port (or, for
-the tests of server answers, a small HTTP server on loopback started by the test).
+the tests of server answers, a small HTTP server on loopback started by the test). The
+``seeded`` fixture (conftest.py) holds the cache of `tests.openml_cache.Seeded`.
 """
 
 from __future__ import annotations
 
+import ast
 import hashlib
 import http.server
 import json
-import sys
 import threading
 import time
 from pathlib import Path
@@ -21,36 +22,9 @@ import pytest
 from tests import openml_cache as oc  # noqa: E402
 
 from harness.datasets import SOURCES  # noqa: E402
-from harness.datasets import openml_source as src  # noqa: E402
+from harness.datasets import openml as src  # noqa: E402
 from harness.datasets.spec import DatasetSpec  # noqa: E402
 from harness.errors import UserError  # noqa: E402
-
-
-class Seeded:
-    def __init__(self, root: Path, cache: Path):
-        self.root, self.cache = root, cache
-        self.suite_file = root / "suites" / "trees.toml"
-        self.orchard, self.river, self.meadow = oc.orchard(), oc.river(), oc.meadow()
-        oc.write_dataset(cache, self.orchard)
-        oc.write_dataset(cache, self.river)
-        oc.write_dataset(cache, self.meadow, data=False)  # metadata only
-        self.splits77 = oc.write_task(cache, 77, self.orchard, seed=5)
-        self.splits78 = oc.write_task(cache, 78, self.river, type_id=2, repeats=1, folds=4)
-        oc.write_task(cache, 79, self.meadow, splits=False)
-        oc.write_task(cache, 80, self.orchard, type_id=5)
-        oc.write_task(cache, 81, self.orchard, type_id=4)
-        oc.write_suite(cache, 9001, 9001, "orchard-bench", [77, 78, 79, 80])
-        oc.write_suite(cache, "orchard-bench", 9001, "orchard-bench", [77, 78, 79, 80])
-
-    def spec(self, name="orchard", position=2, **options) -> DatasetSpec:
-        return DatasetSpec(name=name, source="openml", options=options,
-                           suite_file=self.suite_file, position=position)
-
-
-@pytest.fixture
-def seeded(tmp_path):
-    with oc.openml_configured(tmp_path) as cache:
-        yield Seeded(tmp_path, cache)
 
 
 # ------------------------------------------------------------------------ cache location
@@ -189,14 +163,14 @@ def test_expect_mismatch_names_entry_field_expected_and_found(seeded, expect, fi
 
 # ------------------------------------------------------------------------ offline / network
 
-def test_uncached_dataset_offline_points_to_woodlot_fetch_quickly(seeded):
+def test_uncached_dataset_offline_points_to_woodlot_download_quickly(seeded):
     start = time.monotonic()
     with pytest.raises(UserError) as err:
         src.load_openml(seeded.spec(name="far", position=3, dataset=5555))
     assert time.monotonic() - start < 3
     msg = str(err.value)
     assert "dataset 'far' (entry 3)" in msg and "field 'dataset'" in msg
-    assert f"woodlot fetch {seeded.suite_file}" in msg
+    assert f"woodlot download {seeded.suite_file}" in msg
     assert "OpenML dataset 5555 is not in the local OpenML cache" in msg
     assert "after 2 attempts" in msg and "\n" not in msg
 
@@ -205,10 +179,10 @@ def test_task_with_uncached_data_offline(seeded):
     with pytest.raises(UserError) as err:
         src.load_openml(seeded.spec(name="meadow", task=79))
     msg = str(err.value)
-    assert "field 'task'" in msg and "woodlot fetch" in msg
+    assert "field 'task'" in msg and "woodlot download" in msg
 
 
-def test_is_cached_and_fetch_need_no_server_when_everything_is_there(seeded):
+def test_is_cached_and_download_need_no_server_when_everything_is_there(seeded):
     assert src.is_cached(seeded.spec(dataset=4242))
     assert src.is_cached(seeded.spec(task=77))
     assert not src.is_cached(seeded.spec(dataset=5555))
@@ -217,14 +191,14 @@ def test_is_cached_and_fetch_need_no_server_when_everything_is_there(seeded):
     assert not src.is_cached(seeded.spec(suite=9001))  # 79 kept, its data missing
     assert not src.is_cached(seeded.spec(suite=4711))
     said = []
-    assert src.fetch(seeded.spec(task=77), progress=said.append) == []
-    assert src.fetch(seeded.spec(suite=9001, max_rows=100), progress=said.append) == []
+    assert src.download(seeded.spec(task=77), progress=said.append) == []
+    assert src.download(seeded.spec(suite=9001, max_rows=100), progress=said.append) == []
     assert any("already cached" in line for line in said)
 
 
-def test_fetch_without_network_is_one_clear_error(seeded):
+def test_download_without_network_is_one_clear_error(seeded):
     with pytest.raises(UserError) as err:
-        src.fetch(seeded.spec(name="meadow", task=79))
+        src.download(seeded.spec(name="meadow", task=79))
     msg = str(err.value)
     assert "could not download OpenML dataset 4244" in msg and "after 2 attempts" in msg
     assert "dataset 'meadow' (entry 2): field 'task'" in msg
@@ -297,7 +271,7 @@ def test_unknown_id_is_a_user_error_naming_the_field(server, tmp_path):
     assert server.hits == ["/api/v1/xml/data/999999"]  # a definite answer is not retried
     spec = DatasetSpec("gone", "openml", {"task": 888888}, tmp_path / "s.toml", 4)
     with pytest.raises(UserError, match=r"field 'task': OpenML task 888888 does not exist"):
-        src.fetch(spec)
+        src.download(spec)
 
 
 def test_server_trouble_is_retried_then_reported_once(server, tmp_path, monkeypatch):
@@ -308,10 +282,24 @@ def test_server_trouble_is_retried_then_reported_once(server, tmp_path, monkeypa
         src.load_openml(spec)
     assert server.hits == ["/api/v1/xml/data/31"] * 3
     msg = str(err.value)
-    assert "after 3 attempts" in msg and "woodlot fetch" in msg and "\n" not in msg
+    assert "after 3 attempts" in msg and "woodlot download" in msg and "\n" not in msg
 
 
-def test_fetch_downloads_into_the_cache_then_loads_offline(server, tmp_path):
+def test_clients_own_retries_are_off_during_a_call_and_restored_after(server, tmp_path,
+                                                                     monkeypatch):
+    import openml
+    openml.config.set_retry_policy("human", 4)  # the client would try 4 times, waiting
+    monkeypatch.setenv("WOODLOT_OPENML_ATTEMPTS", "2")
+    server.routes["/api/v1/xml/data/32"] = (503, "Service Unavailable")
+    spec = DatasetSpec("busy", "openml", {"dataset": 32}, tmp_path / "s.toml", 1)
+    with pytest.raises(UserError, match="after 2 attempts"):
+        src.load_openml(spec)
+    assert server.hits == ["/api/v1/xml/data/32"] * 2
+    after = openml.config.get_config_as_dict()
+    assert after["retry_policy"] == "human" and after["connection_n_retries"] == 4
+
+
+def test_download_fills_the_cache_then_loads_offline(server, tmp_path):
     t = oc.orchard(did=4250)
     staging = tmp_path / "staging"  # render the files, then serve them
     oc.write_dataset(staging, t)
@@ -328,7 +316,7 @@ def test_fetch_downloads_into_the_cache_then_loads_offline(server, tmp_path):
     spec = DatasetSpec("orchard", "openml", {"dataset": 4250}, tmp_path / "s.toml", 1)
     assert not src.is_cached(spec)
     said: list[str] = []
-    assert src.fetch(spec, progress=said.append) == ["dataset/4250"]
+    assert src.download(spec, progress=said.append) == ["dataset/4250"]
     assert said == ["orchard: downloading OpenML dataset 4250"]
     assert src.is_cached(spec)
     assert (server.cache / "datasets" / "4250" / "dataset.arff").is_file()
@@ -336,7 +324,7 @@ def test_fetch_downloads_into_the_cache_then_loads_offline(server, tmp_path):
     n = len(server.hits)
     ds = src.load_openml(spec)
     assert ds.n_rows == 60 and ds.categorical == ("soil",)
-    assert src.fetch(spec) == [] and len(server.hits) == n
+    assert src.download(spec) == [] and len(server.hits) == n
 
 
 # --------------------------------------------------------------------------- entry checks
@@ -375,9 +363,9 @@ def test_check_openml_entry_accepts(options):
     src.check_openml_entry(DatasetSpec("e", "openml", options, Path("s.toml"), 1))
 
 
-def test_registered_as_a_network_source():
+def test_registered_as_the_openml_source():
     source = SOURCES["openml"]
-    assert source.network and source.load is src.load_openml
+    assert source.load is src.load_openml
     assert source.check is src.check_openml_entry and source.required == ()
     for key in ("dataset", "task", "suite", "target", "expect", "max_rows", "max_columns",
                 "max_classes"):
@@ -425,7 +413,7 @@ def test_uncached_suite_offline(seeded):
         src.expand_benchmark_suite(seeded.spec(name="cc", suite="OpenML-CC18"))
     msg = str(err.value)
     assert "OpenML suite OpenML-CC18 is not in the local OpenML cache" in msg
-    assert "field 'suite'" in msg and "woodlot fetch" in msg
+    assert "field 'suite'" in msg and "woodlot download" in msg
 
 
 def test_suite_entry_is_not_loaded_directly(seeded):
@@ -483,3 +471,43 @@ def test_cached_arff_copy_is_used_when_the_parquet_file_is_missing(seeded):
     assert ds.categorical == ("season", "station") and ds.n_rows == 60
     assert not (d / "dataset_4243.pq").exists()
     assert "OPENML_SKIP_PARQUET" not in __import__("os").environ
+
+
+# ---------------------------------------------------------------- the subpackage's shape
+
+PACKAGE = Path(src.__file__).parent
+ROOT = PACKAGE.parents[2]
+
+
+def _imported(path: Path) -> list[tuple[str, list[str]]]:
+    """(module, names) of each ``from module import names`` in a file."""
+    return [(node.module or "", [a.name for a in node.names])
+            for node in ast.walk(ast.parse(path.read_text(encoding="utf8")))
+            if isinstance(node, ast.ImportFrom)]
+
+
+def test_only_the_cache_module_knows_the_cache_layout():
+    layout = ("get_cache_directory", '/ "', '/ f"', "description.xml", "features.xml",
+              "qualities.xml", "dataset.arff", ".pq", "task.xml", "datasplits.arff", ".json")
+    for path in PACKAGE.glob("*.py"):
+        if path.name != "cache.py":
+            text = path.read_text(encoding="utf8")
+            assert [w for w in layout if w in text] == [], path.name
+
+
+def test_subpackage_imports_form_no_cycle_and_keep_private_names_inside():
+    graph = {p.stem: {m.rsplit(".", 1)[1] for m, _ in _imported(p)
+                      if m.startswith(f"{src.__name__}.")}
+             for p in PACKAGE.glob("*.py")}
+    done: set[str] = set()
+    while len(done) < len(graph):  # peel off modules whose imports are all peeled off
+        ready = {m for m, deps in graph.items() if m not in done and deps <= done}
+        assert ready, f"import cycle among {sorted(set(graph) - done)}"
+        done |= ready
+    outside = [p for d in ("harness", "tests") for p in (ROOT / d).rglob("*.py")
+               if PACKAGE not in p.parents]
+    assert len(outside) > 10
+    for path in outside:
+        for module, names in _imported(path):
+            if module.startswith(src.__name__):
+                assert [n for n in names if n.startswith("_")] == [], path

@@ -5,19 +5,9 @@ The server configured for these tests is a closed loopback port, so nothing reac
 
 from __future__ import annotations
 
-import numpy as np
-import pytest
-
 from harness import load_results, run_suite
 from harness.cli import main
 from harness.suite import load_suite
-from tests.test_openml_source import Seeded, oc
-
-
-@pytest.fixture
-def seeded(tmp_path):
-    with oc.openml_configured(tmp_path) as cache:
-        yield Seeded(tmp_path, cache)
 
 
 def suite_file(seeded, body: str):
@@ -59,7 +49,7 @@ def test_task_splits_are_used_exactly_as_published(seeded, tmp_path):
         assert (rows.n_train == len(train)).all() and (rows.n_test == len(test)).all()
 
 
-def test_openml_resampling_needs_task_entries(seeded, tmp_path, capsys):
+def test_published_splits_need_task_entries(seeded, tmp_path, capsys):
     path = suite_file(seeded, TASK_SUITE.replace("task = 77", "dataset = 4242"))
     assert main(["run", str(path), "--out", str(tmp_path / "out"), "--quiet"]) == 2
     err = capsys.readouterr().err
@@ -74,15 +64,15 @@ def test_uncached_dataset_offline_stops_before_anything_is_written(seeded, tmp_p
     assert main(["run", str(path), "--out", str(tmp_path / "out"), "--quiet"]) == 2
     err = capsys.readouterr().err.strip()
     assert len(err.splitlines()) == 1
-    assert "dataset 'orchard'" in err and "woodlot fetch" in err
+    assert "dataset 'orchard'" in err and "woodlot download" in err
     assert not (tmp_path / "out").exists()
-    assert main(["fetch", str(path)]) == 2  # and fetching needs the network it lacks
+    assert main(["download", str(path)]) == 2  # and downloading needs the network it lacks
     assert "orchard" in capsys.readouterr().err
 
 
-def test_fetch_with_everything_cached_downloads_nothing(seeded, capsys):
+def test_download_with_everything_cached_downloads_nothing(seeded, capsys):
     path = suite_file(seeded, TASK_SUITE)
-    assert main(["fetch", str(path)]) == 0
+    assert main(["download", str(path)]) == 0
     out = capsys.readouterr().out
     assert "already in the cache" in out
 

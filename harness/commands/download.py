@@ -5,7 +5,7 @@ from __future__ import annotations
 
 from typing import Callable
 
-from harness.datasets.openml_source import fetch as download_entry
+from harness.datasets.openml import download
 from harness.suite import load_suite
 
 
@@ -21,7 +21,7 @@ def download_suite(path, echo: Callable[[str], None] = print) -> dict[str, list[
         echo(f"{path}: no OpenML entries; nothing to download")
     for i, spec in enumerate(entries, start=1):
         echo(f"[{i}/{len(entries)}] {spec.name}")
-        done[spec.name] = download_entry(spec, progress=lambda line: echo(f"    {line}"))
+        done[spec.name] = download(spec, progress=lambda line: echo(f"    {line}"))
         if not done[spec.name]:
             echo("    already in the cache")
     return done

@@ -14,7 +14,7 @@ from harness.datasets.base import (CLASSIFICATION, REGRESSION, TASKS, Dataset, S
                                    fingerprint, finish, infer_task)
 from harness.datasets.bundled import load_generator, load_sklearn
 from harness.datasets.files import load_file
-from harness.datasets.openml_source import check_openml_entry, load_openml
+from harness.datasets.openml import check_openml_entry, load_openml
 from harness.datasets.spec import DatasetSpec
 
 COMMON_KEYS = ("name", "from", "task", "categorical", "drop")
