@@ -6,7 +6,6 @@ import textwrap
 
 import numpy as np
 import pandas as pd
-import pytest
 
 from harness.cli import main
 
