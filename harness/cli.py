@@ -115,7 +115,8 @@ def _choose(args) -> int:
 
     rec = choose(args.data, target=args.target, budget=args.budget, metric=args.metric,
                  jobs=args.jobs, out=args.out, task=args.task, suite=args.suite,
-                 seed=args.seed, progress=False if args.quiet else None)
+                 seed=args.seed, drop=tuple(args.drop or ()), keep=tuple(args.keep or ()),
+                 progress=False if args.quiet else None)
     print("\n" + "\n".join(rec.sentences))
     for title, items in sections(rec):
         print(f"\n{title}:\n" + "\n".join(f"  - {x}" for x in items))
@@ -199,7 +200,13 @@ def parser() -> argparse.ArgumentParser:
                     "10m (default 10m)")
     ch.add_argument("--metric", help="scikit-learn scorer name to decide on (default: accuracy "
                     "or neg_root_mean_squared_error)")
-    ch.add_argument("--task", choices=("classification", "regression"))
+    ch.add_argument("--task", choices=("classification", "regression"),
+                    help="default: inferred from the target column")
+    ch.add_argument("--drop", action="append", metavar="COLUMN",
+                    help="a column to leave out (repeat for several)")
+    ch.add_argument("--keep", action="append", metavar="COLUMN",
+                    help="a column the data check flags as predicting the target almost on its "
+                    "own, known when predictions are made all the same (repeat for several)")
     ch.add_argument("--jobs", type=int, help="worker processes (default: all cores)")
     ch.add_argument("--seed", type=int, default=0, help="seed of the splits and estimators")
     ch.add_argument("--out", help="output folder (default: results/choose-<name>)")

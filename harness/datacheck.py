@@ -7,6 +7,18 @@ module adds what a person should see before trusting a comparison on the table, 
 - identifier columns: whole-number or text columns with a different value in every row;
 - leakage: a feature identical to the target, one that maps one-to-one onto it, or (for
   regression) one that rises or falls exactly with it;
+- a feature that predicts the target almost on its own (`ALONE`): each feature alone, with a
+  shallow tree (depth `ALONE_DEPTH`) under `ALONE_FOLDS`-fold cross-validation on at most
+  `ALONE_ROWS` rows, against all features together (histogram gradient boosting, same folds).
+  Classification is scored per class, one class against the rest, by ROC AUC (a feature that
+  gives away one class is flagged even when the others stay hard); regression by R². A
+  feature is flagged when its score is at least `NEAR_PERFECT` (AUC 0.98, R² 0.95); or when
+  it is at least `CLOSE_FLOOR` (AUC 0.90, R² 0.80), within `CLOSE_GAP` (0.05) of what all
+  features reach, and all features but it reach at least `OWN_SHARE` (0.01) less, i.e. it
+  carries what the other columns cannot make up for (a strong feature whose information
+  other columns share, such as one of several tumour-size measurements, is not flagged).
+  Such a feature is often computed from the target or only known after it; if it is truly
+  known when predictions are made, keep it;
 - constant columns (a single value, or missing everywhere);
 - classes too small for stratified k-fold cross-validation (fewer rows than folds).
 """
@@ -18,24 +30,49 @@ from pathlib import Path
 
 import numpy as np
 import pandas as pd
+from sklearn.ensemble import HistGradientBoostingClassifier, HistGradientBoostingRegressor
+from sklearn.metrics import r2_score, roc_auc_score
+from sklearn.model_selection import KFold, StratifiedKFold, cross_val_predict
+from sklearn.tree import DecisionTreeClassifier, DecisionTreeRegressor
+from threadpoolctl import threadpool_limits
 
-from harness.datasets.base import CLASSIFICATION, Dataset, finish
+from harness.datasets.base import CLASSIFICATION, REGRESSION, Dataset, finish
 from harness.datasets.files import PARQUET_SUFFIXES, read_table, sniff_csv
 from harness.errors import UserError, closest
 
-IDENTIFIER, LEAK, CONSTANT, TINY_CLASS = "identifier", "leak", "constant", "tiny class"
+IDENTIFIER, LEAK, ALONE, CONSTANT, TINY_CLASS = ("identifier", "leak", "predicts alone",
+                                                 "constant", "tiny class")
+ALONE_DEPTH = 3
+ALONE_FOLDS = 3
+ALONE_ROWS = 5_000
+ALONE_MAX_FEATURES = 200
+NEAR_PERFECT = {CLASSIFICATION: 0.98, REGRESSION: 0.95}
+CLOSE_FLOOR = {CLASSIFICATION: 0.90, REGRESSION: 0.80}
+CLOSE_GAP = 0.05
+OWN_SHARE = 0.01
 TOP_MISSING = 5   # columns listed by name in the missing-values line
 TOP_CLASSES = 8   # classes listed by name in the class-balance line
 
 
 @dataclass(frozen=True)
 class Finding:
-    """One warning: its kind (`IDENTIFIER`, `LEAK`, `CONSTANT`, `TINY_CLASS`), the column or
-    class it is about, and a sentence for the terminal."""
+    """One warning: its kind (`IDENTIFIER`, `LEAK`, `ALONE`, `CONSTANT`, `TINY_CLASS`), the
+    column or class it is about, and a sentence for the terminal (without the advice to drop
+    a column, which depends on the command: `DataCheck.lines`)."""
 
     kind: str
     subject: str
     message: str
+
+    @property
+    def column(self) -> bool:
+        """Whether the finding is about a column one could drop."""
+        return self.kind in (IDENTIFIER, LEAK, ALONE, CONSTANT)
+
+
+def suite_drop(column: str) -> str:
+    """How a suite file drops a column (the advice ``woodlot add`` gives)."""
+    return f'drop = ["{column}"] in the suite'
 
 
 @dataclass(frozen=True)
@@ -74,7 +111,9 @@ class DataCheck:
         """The columns (or classes) warned about for ``kind``."""
         return [f.subject for f in self.warnings if f.kind == kind]
 
-    def lines(self) -> list[str]:
+    def lines(self, drop=suite_drop) -> list[str]:
+        """The check for the terminal; ``drop(column)`` says how the command at hand leaves a
+        column out (``--drop COLUMN`` for ``choose``, a suite's ``drop`` for ``add``)."""
         how = ""
         if self.delimiter is not None:
             how = f" (CSV, delimiter {_show(self.delimiter)}, decimal mark {_show(self.decimal)})"
@@ -107,13 +146,14 @@ class DataCheck:
             out.append("  categorical columns: none")
         if self.warnings:
             out.append(f"  warnings ({len(self.warnings)}):")
-            out.extend(f"    ! {f.message}" for f in self.warnings)
+            out.extend(f"    ! {f.message}" + (f" ({drop(f.subject)})" if f.column else "")
+                       for f in self.warnings)
         else:
             out.append("  warnings: none")
         return out
 
-    def text(self) -> str:
-        return "\n".join(self.lines())
+    def text(self, drop=suite_drop) -> str:
+        return "\n".join(self.lines(drop))
 
 
 def check_dataset(dataset: Dataset, *, target: str = "target", task_given: bool = False,
@@ -122,7 +162,8 @@ def check_dataset(dataset: Dataset, *, target: str = "target", task_given: bool 
     """Summarise a loaded `Dataset` and list what deserves a warning.
 
     ``folds`` is the number of cross-validation folds the table must fill: a class with fewer
-    rows cannot appear in every test fold of stratified k-fold.
+    rows cannot appear in every test fold of stratified k-fold. The single-feature check fits
+    small models (a few seconds on tables of thousands of rows).
     """
     X, y = dataset.X, dataset.y
     summary = dataset.summary()
@@ -136,8 +177,10 @@ def check_dataset(dataset: Dataset, *, target: str = "target", task_given: bool 
         target_range = (float(y.min()), float(y.median()), float(y.max()))
     missing = X.isna().mean()
     missing = missing[missing > 0].sort_values(ascending=False, kind="stable")
-    warnings = (_identifiers(X) + _leaks(X, y, dataset.task, target) + _constants(X)
-                + _tiny_classes(classes, folds))
+    leaks = _leaks(X, y, dataset.task, target)
+    warnings = (_identifiers(X) + leaks
+                + _alone(X, y, dataset.task, target, skip={f.subject for f in leaks})
+                + _constants(X) + _tiny_classes(classes, folds))
     return DataCheck(name=dataset.name, source=dataset.source.removeprefix("file:"), rows=n,
                      columns=summary["columns"], target=target, task=summary["task"],
                      task_given=task_given, classes=classes, target_range=target_range,
@@ -208,8 +251,7 @@ def _identifiers(X: pd.DataFrame) -> list[Finding]:
         text = isinstance(col.dtype, pd.CategoricalDtype) or pd.api.types.is_string_dtype(col)
         if n > 1 and col.notna().all() and (text or _whole_numbers(col)) and col.nunique() == n:
             out.append(Finding(IDENTIFIER, c, f"column '{c}' has a different value in every row "
-                               "(an identifier?); it cannot carry over to new rows, drop it "
-                               f"(drop = [\"{c}\"])"))
+                               "(an identifier?); it cannot carry over to new rows: drop it"))
     return out
 
 
@@ -231,7 +273,7 @@ def _leaks(X: pd.DataFrame, y: pd.Series, task: str, target: str) -> list[Findin
         n_x = int(x_codes.max()) + 1
         if n_x == n_y and col.notna().all() and (_as_labels(col) == _as_labels(y)).all():
             out.append(Finding(LEAK, c, f"column '{c}' is identical to the target '{target}' "
-                               "(leakage); drop it"))
+                               "(leakage): drop it"))
             continue
         if not y_unique and n_x == n_y and np.unique(x_codes * n_y + y_codes).size == n_y:
             out.append(Finding(LEAK, c, f"column '{c}' maps one-to-one onto the target "
@@ -255,16 +297,96 @@ def _leaks(X: pd.DataFrame, y: pd.Series, task: str, target: str) -> list[Findin
     return out
 
 
+def _encoded(X: pd.DataFrame) -> pd.DataFrame:
+    """Features as numbers for a tree: categories as codes (missing as -1), numbers as they
+    are (trees in scikit-learn ≥ 1.3 route missing values themselves)."""
+    return pd.DataFrame({c: (pd.Categorical(X[c]).codes.astype(float)
+                             if isinstance(X[c].dtype, pd.CategoricalDtype)
+                             or not pd.api.types.is_numeric_dtype(X[c])
+                             else X[c].to_numpy(dtype=float, na_value=np.nan))
+                         for c in X.columns}, index=X.index)
+
+
+def _scores(pred: np.ndarray, y: np.ndarray, task: str, classes) -> dict[str, float]:
+    """Class → one-vs-rest ROC AUC (classification; one entry for two classes), or
+    ``{"": R²}`` (regression)."""
+    if task != CLASSIFICATION:
+        return {"": float(r2_score(y, pred))}
+    shown = classes[1:] if len(classes) == 2 else classes
+    return {str(c): float(roc_auc_score(y == c, pred[:, list(classes).index(c)]))
+            for c in shown}
+
+
+def _alone(X: pd.DataFrame, y: pd.Series, task: str, target: str,
+           skip: set[str]) -> list[Finding]:
+    """Features that predict the target almost on their own (see the module docstring)."""
+    columns = [c for c in X.columns if c not in skip]
+    if not columns or len(columns) > ALONE_MAX_FEATURES or len(X) < 4 * ALONE_FOLDS:
+        return []
+    rows = np.random.default_rng(0).permutation(len(X))[:ALONE_ROWS]
+    Xs, ys = _encoded(X.iloc[rows]), y.iloc[rows].to_numpy()
+    Xs = Xs[[c for c in Xs.columns if Xs[c].nunique(dropna=False) > 1
+             and Xs[c].notna().any()]]  # constant columns: their own warning, no signal
+    columns = [c for c in columns if c in Xs.columns]
+    if not columns:
+        return []
+    if task == CLASSIFICATION:
+        classes = np.unique(ys)
+        counts = pd.Series(ys).value_counts()
+        if counts.min() < ALONE_FOLDS:
+            return []
+        cv = StratifiedKFold(ALONE_FOLDS, shuffle=True, random_state=0)
+        tree, whole, how = (DecisionTreeClassifier(max_depth=ALONE_DEPTH, random_state=0),
+                            HistGradientBoostingClassifier(random_state=0), "predict_proba")
+    else:
+        classes = None
+        cv = KFold(ALONE_FOLDS, shuffle=True, random_state=0)
+        tree, whole, how = (DecisionTreeRegressor(max_depth=ALONE_DEPTH, random_state=0),
+                            HistGradientBoostingRegressor(random_state=0), "predict")
+    def predicted(model, columns) -> dict[str, float]:
+        return _scores(cross_val_predict(model, Xs[columns], ys, cv=cv, method=how), ys,
+                       task, classes)
+
+    with threadpool_limits(1):  # small fits: threads only contend (measured 15× slower)
+        return _flag_alone(columns, Xs, predicted, tree, whole, task, target)
+
+
+def _flag_alone(columns, Xs, predicted, tree, whole, task, target) -> list[Finding]:
+    reach = predicted(whole, list(Xs.columns))
+    out = []
+    for c in columns:
+        alone = predicted(tree, [c])
+        without = None
+        for label, score in alone.items():
+            near = score >= NEAR_PERFECT[task]
+            close = score >= CLOSE_FLOOR[task] and score >= reach[label] - CLOSE_GAP
+            if close and not near:
+                without = without or predicted(whole, [x for x in Xs.columns if x != c])
+                close = reach[label] - without[label] >= OWN_SHARE
+            if near or close:
+                what = (f"ROC AUC {score:.3f} for class '{label}' against the rest"
+                        if task == CLASSIFICATION else f"R² {score:.3f}")
+                with_all = (f"{reach[label]:.3f}")
+                out.append(Finding(ALONE, c, f"column '{c}' alone predicts the target "
+                                   f"'{target}' almost as well as every feature together "
+                                   f"({what}; all features {with_all}): computed from the "
+                                   "target, or known only after it? drop it unless it is "
+                                   "truly known when predictions are made"))
+                break
+    return out
+
+
 def _constants(X: pd.DataFrame) -> list[Finding]:
     out = []
     for c in X.columns:
         values = X[c].dropna()
         if values.empty:
-            out.append(Finding(CONSTANT, c, f"column '{c}' is missing in every row; drop it"))
+            out.append(Finding(CONSTANT, c, f"column '{c}' is missing in every row: drop it"))
         elif values.nunique() == 1:
             rest = " (missing elsewhere)" if len(values) < len(X) else ""
             out.append(Finding(CONSTANT, c, f"column '{c}' holds the single value "
-                               f"{_show(values.iloc[0])} in every row{rest}; it cannot help"))
+                               f"{_show(values.iloc[0])} in every row{rest}; it cannot help: "
+                               "drop it"))
     return out
 
 

@@ -26,6 +26,7 @@ SPLIT_SCHEMES = (KFOLD, HOLDOUT, PUBLISHED)
 DEFAULT_METRICS = {"classification": ("accuracy", "balanced_accuracy", "neg_log_loss"),
                    "regression": ("neg_root_mean_squared_error", "r2")}
 SECTIONS = ("suite", "protocol", "also_measure", "dataset", "strategy", "speedup")
+DATA_SUFFIXES = (".csv", ".tsv", ".txt", ".parquet", ".pq")
 
 
 @dataclass(frozen=True)
@@ -147,7 +148,16 @@ def read_toml(path: Path) -> tuple[dict[str, Any], str]:
     try:
         return tomllib.loads(text), text
     except tomllib.TOMLDecodeError as exc:
-        raise UserError(f"not valid TOML: {exc}", file=path) from None
+        hint = ""
+        if path.suffix.lower() in DATA_SUFFIXES:
+            hint = (f"; {path.name} looks like a data table: 'woodlot choose {path} --target "
+                    f"COLUMN' compares the methods on it, 'woodlot add SUITE --file {path} "
+                    "--target COLUMN' adds it to a suite")
+        raise UserError(f"a suite file (TOML) is expected, but this is not valid TOML ({exc})"
+                        f"{hint}; a suite file looks like: [suite] name = \"demo\" · "
+                        "[[dataset]] name = \"wine\" from = \"sklearn\" load = \"load_wine\" · "
+                        "[[strategy]] name = \"forest\" method = \"random-forest\" (README, "
+                        "'Suite files')", file=path) from None
 
 
 def load_suite(path: str | Path, *, expand: bool = True) -> Suite:

@@ -85,6 +85,42 @@ def test_budget_far_too_small_is_a_clear_message(tmp_path, capsys):
     assert not (tmp_path / "out").exists()
 
 
+def test_a_leaking_column_stops_choose_unless_dropped_or_kept(tmp_path, capsys):
+    frame = noise(n=300)
+    frame["sensor"] = (frame.y == "yes") + np.random.default_rng(2).normal(0, 0.1, len(frame))
+    frame["row"] = np.arange(len(frame))
+    path = tmp_path / "leaky.csv"
+    frame.to_csv(path, index=False)
+    out = tmp_path / "out"
+    assert main(["choose", str(path), "--target", "y", "--budget", "20s", "--out",
+                 str(out)]) == 2
+    captured = capsys.readouterr()
+    err = captured.err.strip()
+    assert len(err.splitlines()) == 1 and "field 'sensor'" in err
+    assert "--drop sensor" in err and "--keep sensor" in err
+    # the advice in the check fits the command, not suite syntax
+    assert "(--drop row)" in captured.out and "drop = [" not in captured.out
+    assert not out.exists()
+    assert main(["choose", str(path), "--target", "y", "--keep", "nope", "--out",
+                 str(out)]) == 2
+    assert "--keep names a column" in capsys.readouterr().err
+
+
+@pytest.mark.slow
+def test_dropped_columns_are_left_out_of_the_comparison(tmp_path):
+    frame = noise(n=300)
+    frame["sensor"] = (frame.y == "yes") + np.random.default_rng(2).normal(0, 0.1, len(frame))
+    frame["row"] = np.arange(len(frame))
+    path = tmp_path / "leaky.csv"
+    frame.to_csv(path, index=False)
+    rec = choose(str(path), target="y", budget=25, out=tmp_path / "out", jobs=2,
+                 drop=("sensor", "row"), echo=lambda s: None, progress=False)
+    suite = (tmp_path / "out" / "choose.toml").read_text()
+    assert 'drop = ["sensor", "row"]' in suite
+    assert 'path = "../leaky.csv"' in suite  # relative to the results folder
+    assert rec.strategies and all(r["mean"] < 0.75 for r in rec.strategies)
+
+
 def test_bad_target_and_metric(tmp_path, capsys):
     noise().to_csv(tmp_path / "noise.csv", index=False)
     assert main(["choose", str(tmp_path / "noise.csv"), "--target", "z"]) == 2

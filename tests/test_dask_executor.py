@@ -134,7 +134,10 @@ def test_same_scores_as_local_processes(write_suite, tmp_path, capsys):
     run_suite(suite, out=tmp_path / "local", executor=LocalExecutor(2), **quiet())
     assert main(["run", str(suite), "--executor", "dask", "--workers", "2",
                  "--out", str(tmp_path / "dask"), "--quiet"]) == 0
-    assert "36 cells planned: 0 already stored, 36 run." in capsys.readouterr().out
+    captured = capsys.readouterr()
+    assert "36 cells planned: 0 already stored, 36 run." in captured.out
+    assert "started a local Dask cluster of 2 one-thread worker processes" in captured.err
+    assert "dashboard at http://127.0.0.1:" in captured.err
     local, remote = stored(tmp_path / "local"), stored(tmp_path / "dask")
     assert len(local) == 36 and set(remote) == set(local)
     for key, row in local.items():

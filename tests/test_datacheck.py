@@ -6,7 +6,8 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from harness.datacheck import (CONSTANT, IDENTIFIER, LEAK, TINY_CLASS, check_file, check_frame)
+from harness.datacheck import (ALONE, CONSTANT, IDENTIFIER, LEAK, TINY_CLASS, check_file,
+                               check_frame)
 from harness.errors import UserError
 
 
@@ -100,6 +101,58 @@ def test_regression_leaks_copy_and_monotone_transform_but_not_noisy_copy():
     assert c.task == "regression"
     assert c.flagged(LEAK) == ["price_copy", "log_price"]
     assert "falls exactly as the target 'price' rises" in c.text()
+
+
+def test_a_feature_that_predicts_the_target_almost_alone_is_flagged():
+    """A constructed leak: the target plus a little noise (regression), the class plus a
+    little noise (classification). Honest features of the same tables are not flagged."""
+    from sklearn.datasets import make_friedman1
+
+    X, y = make_friedman1(n_samples=600, noise=1.0, random_state=3)
+    df = pd.DataFrame(X, columns=[f"x{i}" for i in range(X.shape[1])]).assign(target=y)
+    rng = np.random.default_rng(3)
+    df["metered"] = y + rng.normal(0, 0.05 * y.std(), len(y))
+    c = check(df, target="target")
+    assert c.flagged(ALONE) == ["metered"], c.text()
+    assert "R² 0.9" in c.text()
+    df, rng = frame(400, seed=4)
+    df["probe"] = (df.label == "wet") + rng.normal(0, 0.2, len(df))
+    c = check(df)
+    assert c.flagged(ALONE) == ["probe"], c.text()
+    assert "ROC AUC" in c.text() and "for class" in c.text()
+
+
+def test_strong_feature_shared_with_other_columns_is_not_flagged():
+    """Breast cancer (scikit-learn's copy of the Wisconsin diagnostic data): 'worst concave
+    points' alone reaches a ROC AUC of about 0.95 against about 0.99 for all features, but
+    the other size and shape measurements make up for it, so it is no leak."""
+    from sklearn.datasets import load_breast_cancer
+
+    b = load_breast_cancer(as_frame=True)
+    c = check(b.data.assign(diagnosis=b.target), target="diagnosis")
+    assert c.flagged(ALONE) == [], c.text()
+
+
+def test_greenhouse_energy_is_flagged_for_the_alarm_target():
+    """The demo's end-of-day energy use is partly computed from the cold alarm
+    (examples/make_greenhouse.py): it gives that class away."""
+    from pathlib import Path
+
+    path = Path(__file__).resolve().parents[1] / "examples" / "greenhouse.csv"
+    _, c = check_file(path, "alarm")
+    assert c.flagged(ALONE) == ["energy_kwh_m2"]
+    assert c.flagged(IDENTIFIER) == ["record"]
+    assert "for class 'cold'" in c.text()
+    _, c = check_file(path, "alarm", drop=["energy_kwh_m2", "record"])
+    assert c.warnings == ()
+
+
+def test_advice_to_drop_fits_the_command():
+    df, rng = frame()
+    df["row_id"] = np.arange(len(df))
+    c = check(df)
+    assert 'drop = ["row_id"] in the suite' in c.text()
+    assert "(--drop row_id)" in c.text(lambda col: f"--drop {col}")
 
 
 def test_constant_columns():

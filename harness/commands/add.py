@@ -108,7 +108,7 @@ def add_file(suite_path: str | Path, data_path: str | Path, target: str, *,
     folds = p.folds if p.splits == KFOLD else 2
     dataset, check = check_file(data_path, target, name=name, task=task, drop=drop,
                                 delimiter=delimiter, decimal=decimal, folds=folds)
-    for line in check.lines():
+    for line in check.lines(lambda c: f"--drop {c}, or drop = [\"{c}\"] in the suite"):
         echo(line)
     make_splits(dataset, p, where)  # the suite's protocol must be able to split the table
 

@@ -17,6 +17,7 @@ from __future__ import annotations
 
 import os
 import time
+from dataclasses import replace
 from pathlib import Path
 from typing import Any, Callable
 
@@ -27,7 +28,7 @@ from harness.analysis.recommendation import Recommendation, plan_budget, recomme
 from harness.analysis.verdict import verdict
 from harness.commands.run import run_suite
 from harness.commands.speedup import speedup_suite
-from harness.datacheck import DataCheck, check_dataset, check_file
+from harness.datacheck import ALONE, LEAK, DataCheck, check_dataset, check_file
 from harness.datasets import Dataset, load_dataset
 from harness.errors import UserError, closest
 from harness.files import write_text
@@ -59,10 +60,11 @@ SUITE_NAME = "choose.toml"
 # ------------------------------------------------------------------ the data
 
 def _data(data: str, target: str | None, task: str | None, suite: str | None,
+          drop: tuple[str, ...],
           folder_of: Callable[[str], Path]) -> tuple[Dataset, DataCheck, dict, Path]:
     """(dataset, its check, the dataset entry for ``choose.toml``, the output folder) for a
-    file or a suite's dataset. Paths in the entry are relative to the output folder, so the
-    folder can be moved together with the data."""
+    file or a suite's dataset, without the ``drop`` columns. Paths in the entry are relative
+    to the output folder, so the folder can be moved together with the data."""
     if suite is not None:
         s = load_suite(suite)
         spec = next((d for d in s.datasets if d.name == data), None)
@@ -70,22 +72,27 @@ def _data(data: str, target: str | None, task: str | None, suite: str | None,
             names = [d.name for d in s.datasets]
             raise UserError(f"no dataset '{data}' in this suite{closest(data, names)} (it has "
                             f"{', '.join(names)})", file=suite, field="name")
+        options = dict(spec.options)
+        if drop:
+            options["drop"] = list(dict.fromkeys([*options.get("drop", []), *drop]))
+            spec = replace(spec, options=options)
         ds = load_dataset(spec)
         folder = folder_of(spec.name)
-        options = dict(spec.options)
         if "path" in options:
             options["path"] = _relative(spec.path("path"), folder)
         entry = {"name": spec.name, "from": spec.source, **options}
         return ds, check_dataset(ds, target=options.get("target", "target")), entry, folder
     if target is None:
         raise UserError("--target COLUMN is needed with a data file", file=data, field="target")
-    ds, check = check_file(data, target, task=task, folds=FOLDS)
+    ds, check = check_file(data, target, task=task, drop=drop, folds=FOLDS)
     name = ds.name if is_name(ds.name) else "data"
     folder = folder_of(name)
     entry = {"name": name, "from": "file", "path": _relative(Path(data), folder),
              "target": target}
     if task is not None:
         entry["task"] = task
+    if drop:
+        entry["drop"] = list(drop)
     if check.delimiter not in (None, ","):
         entry["delimiter"] = check.delimiter
     if check.decimal not in (None, "."):
@@ -128,11 +135,31 @@ def suite_text(entry: dict, metrics: list[str], task: str, repeats: int, seed: i
 
 # ------------------------------------------------------------------ the run
 
+def _refuse_leaks(check: DataCheck, keep: tuple[str, ...], data: str) -> None:
+    """Stop before anything runs when a column looks like leakage and the user has not said
+    to keep it: a recommendation trained on it would not hold for new rows."""
+    leaks = [f for f in check.warnings if f.kind in (LEAK, ALONE) and f.subject not in keep]
+    if leaks:
+        names = [f.subject for f in leaks]
+        raise UserError(f"{', '.join(repr(n) for n in names)} predict"
+                        f"{'s' if len(names) == 1 else ''} the target almost on "
+                        f"{'its' if len(names) == 1 else 'their'} own (see the warnings above); "
+                        "a recommendation trained on leaked information would not hold for new "
+                        "rows: leave it out with " + " ".join(f"--drop {n}" for n in names)
+                        + ", or, if it is truly known when predictions are made, say so with "
+                        + " ".join(f"--keep {n}" for n in names), file=data, field=names[0])
+
+
 def choose(data: str, *, target: str | None = None, budget: str | float = "10m",
            metric: str | None = None, jobs: int | None = None, out: str | Path | None = None,
            task: str | None = None, suite: str | None = None, seed: int = 0,
+           drop: tuple[str, ...] = (), keep: tuple[str, ...] = (),
            echo: Callable[[str], None] = print, progress: bool | None = None) -> Recommendation:
-    """Compare the catalogue on one table within ``budget`` and recommend a strategy."""
+    """Compare the catalogue on one table within ``budget`` and recommend a strategy.
+
+    ``drop``: columns to leave out. ``keep``: columns the data check flags as predicting the
+    target almost on their own that are nevertheless known at prediction time (without it,
+    such a column stops `choose` with exit status 2 before anything runs)."""
     t0 = time.perf_counter()
     budget_s = parse_duration(budget, "--budget", "budget") if not isinstance(
         budget, (int, float)) else float(budget)
@@ -145,7 +172,7 @@ def choose(data: str, *, target: str | None = None, budget: str | float = "10m",
     deadline = t0 + budget_s
     jobs = jobs or os.cpu_count() or 1
     ds, check, entry, folder = _data(
-        data, target, task, suite,
+        data, target, task, suite, tuple(drop),
         lambda name: Path(out) if out is not None else Path("results") / f"choose-{name}")
     metrics = list(DEFAULT_METRICS[ds.task])
     if metric is not None:
@@ -153,8 +180,13 @@ def choose(data: str, *, target: str | None = None, budget: str | float = "10m",
             raise UserError(f"'{metric}' is not a scikit-learn scorer name"
                             f"{closest(metric, get_scorer_names())}", file="--metric")
         metrics = [metric] + [m for m in metrics if m != metric]
-    for line in check.lines():
+    for line in check.lines(lambda c: f"--drop {c}"):
         echo(line)
+    unknown = [k for k in keep if k not in ds.X.columns]
+    if unknown:
+        raise UserError(f"--keep names a column the table does not have: {unknown[0]}",
+                        file=data, field=unknown[0])
+    _refuse_leaks(check, tuple(keep), data)
     folder.mkdir(parents=True, exist_ok=True)
     suite_path = folder / SUITE_NAME
 

@@ -68,6 +68,8 @@ def session(path: str | Path, *, out: str | Path | None = None, command: str | N
     plan = make_plan(suite)
     folder = results_folder(suite, out)
     with executor if executor is not None else nullcontext():
+        for line in executor.notes() if executor is not None else ():
+            echo(line)
         if fresh:
             remove_store(folder)
             clear_outputs(folder)

@@ -1,44 +1,43 @@
-"""A progress bar with counts and ETA on a terminal; silent otherwise."""
+"""Progress of a run: counts, failures and time left, on a terminal or in a notebook.
+
+Drawn by tqdm's ``auto`` front end, which uses a notebook widget under Jupyter and a text bar
+elsewhere. By default it shows when stderr is a terminal or the code runs in a notebook
+kernel, and stays silent otherwise (CI logs, pipes).
+"""
 
 from __future__ import annotations
 
 import sys
-import time
+
+from tqdm.auto import tqdm
+
+
+def in_notebook() -> bool:
+    """Whether the code runs in a Jupyter (IPython) kernel."""
+    shell = sys.modules.get("IPython")
+    get = getattr(shell, "get_ipython", None) if shell is not None else None
+    kernel = get() if get is not None else None
+    return kernel is not None and "IPKernelApp" in getattr(kernel, "config", {})
 
 
 class Progress:
-    def __init__(self, total: int, label: str = "cells", stream=None, enabled: bool | None = None):
-        self.total, self.label, self.done, self.failed = total, label, 0, 0
-        self.stream = stream or sys.stderr
-        self.enabled = self.stream.isatty() if enabled is None else enabled
-        self.t0 = time.perf_counter()
-        self._last = 0.0
+    """A progress bar over ``total`` units of work (``label`` names them)."""
+
+    def __init__(self, total: int, label: str = "cells", enabled: bool | None = None) -> None:
+        if enabled is None:
+            enabled = sys.stderr.isatty() or in_notebook()
+        self.total, self.done, self.failed = total, 0, 0
+        self.bar = tqdm(total=total, unit=f" {label}", disable=not enabled or total == 0,
+                        dynamic_ncols=True, leave=True, file=sys.stderr,
+                        bar_format="{l_bar}{bar}| {n_fmt}/{total_fmt}{unit} "
+                                   "[{elapsed} elapsed, ~{remaining} left{postfix}]")
 
     def step(self, ok: bool = True) -> None:
         self.done += 1
-        self.failed += 0 if ok else 1
-        now = time.perf_counter()
-        if self.enabled and (now - self._last > 0.2 or self.done == self.total):
-            self._last = now
-            self._draw(now)
-
-    def _draw(self, now: float) -> None:
-        elapsed = now - self.t0
-        frac = self.done / self.total if self.total else 1.0
-        eta = elapsed / self.done * (self.total - self.done) if self.done else 0.0
-        width = 28
-        bar = "#" * int(width * frac) + "-" * (width - int(width * frac))
-        failed = f", {self.failed} failed" if self.failed else ""
-        self.stream.write(f"\r[{bar}] {self.done}/{self.total} {self.label}{failed}  "
-                          f"{_clock(elapsed)} elapsed, ~{_clock(eta)} left ")
-        self.stream.flush()
+        if not ok:
+            self.failed += 1
+            self.bar.set_postfix_str(f"{self.failed} failed", refresh=False)
+        self.bar.update(1)
 
     def close(self) -> None:
-        if self.enabled and self.total:
-            self.stream.write("\n")
-            self.stream.flush()
-
-
-def _clock(seconds: float) -> str:
-    seconds = int(round(seconds))
-    return f"{seconds // 60}:{seconds % 60:02d}"
+        self.bar.close()

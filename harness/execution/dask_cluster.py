@@ -128,6 +128,14 @@ def _cancel_reason(future) -> str:
     return "unknown"
 
 
+def _dashboard(client) -> str | None:
+    """The address of the scheduler's status page, when it serves one."""
+    try:
+        return client.dashboard_link or None
+    except Exception:  # no dashboard (bokeh missing) or an older client: nothing to show
+        return None
+
+
 def _check_reachable(address: str, timeout: float) -> None:
     """Fail at once when nothing listens at a tcp:// address (Dask would retry until its
     timeout); other protocols are left to Dask's own connection."""
@@ -254,10 +262,20 @@ class DaskExecutor(Executor):
                         "cluster": ("local cluster started by woodlot" if self.cluster
                                     else "existing cluster"),
                         "worker_hosts": dict(sorted(hosts.items())),
-                        "workers": sorted(probes), "allowed_failures": limit}
+                        "workers": sorted(probes), "allowed_failures": limit,
+                        "dashboard": _dashboard(client)}
 
     def describe(self) -> dict[str, Any]:
         return {"executor": self.name, "jobs": None, "dask": dict(self.details)}
+
+    def notes(self) -> list[str]:
+        d = self.details
+        where = f"; dashboard at {d['dashboard']}" if d.get("dashboard") else ""
+        if self.cluster is not None:
+            return [f"started a local Dask cluster of {self.workers} one-thread worker "
+                    f"process{'es' if self.workers != 1 else ''} at {d.get('scheduler')}{where}"]
+        return [f"connected to the Dask scheduler at {d.get('scheduler')} "
+                f"({len(d.get('workers', []))} workers){where}"]
 
     def close(self) -> None:
         for thread in self._restarting.values():

@@ -30,6 +30,10 @@ class Executor(ABC):
         """What the run's provenance records about where the cells ran."""
         return {"executor": self.name, "jobs": self.jobs}
 
+    def notes(self) -> list[str]:
+        """Lines a person should see once the executor is open (a cluster started, ...)."""
+        return []
+
     @abstractmethod
     def run(self, cells: list[Cell], datasets: dict[str, Dataset],
             timeout: float | None) -> Iterator[dict]:
