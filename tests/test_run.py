@@ -34,6 +34,9 @@ def test_run_then_rerun_fits_nothing(write_suite, tmp_path):
     assert (frame.model_bytes > 0).all()
     second = run_suite(path, out=out, jobs=2, progress=False)
     assert second.ran == 0 and second.reused == first.planned
+    # what a notebook shows for the result: one short line, no tables
+    assert repr(second) == (f"RunResult(folder='{out}', planned=36, reused=36, ran=0, "
+                            "failed=0)")
     fresh = run_suite(path, out=out, jobs=2, progress=False, fresh=True)
     assert fresh.ran == first.planned
 
@@ -127,7 +130,10 @@ def test_report_regenerates_outputs_from_the_store_alone(write_suite, tmp_path, 
     for p in list((out / "tables").iterdir()) + list((out / "plots").iterdir()):
         p.unlink()
     path.unlink()  # the suite file is not needed either
+    capsys.readouterr()
     assert main(["report", str(out)]) == 0
+    printed = capsys.readouterr().out
+    assert f"files in {out}/" in printed and "tables/scores.csv" not in printed
     after = {p.name: p.read_text() for p in (out / "tables").glob("*.csv")}
     assert after == before
     assert (out / "plots" / "score_vs_fit_time.png").stat().st_size > 10_000

@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import pytest
+
 import textwrap
 
 import numpy as np
@@ -163,3 +165,21 @@ def test_valid_suite_check_prints_plan_without_fitting(write_suite, capsys, tmp_
     assert "wine" in out and "178" in out and "classification" in out
     assert "3 cells" in out and "nothing was fitted" in out
     assert not (tmp_path / "results").exists()
+
+
+def test_version(capsys):
+    from harness.versions import WOODLOT_VERSION
+
+    with pytest.raises(SystemExit) as stop:
+        main(["--version"])
+    assert stop.value.code == 0 and capsys.readouterr().out.strip() == f"woodlot {WOODLOT_VERSION}"
+
+
+def test_a_data_table_given_as_a_suite_gets_a_pointer(tmp_path, capsys):
+    path = tmp_path / "notes.csv"
+    path.write_text("a,b\n1,2\n")
+    assert main(["check", str(path)]) == 2
+    err = capsys.readouterr().err.strip()
+    assert len(err.splitlines()) == 1
+    assert "a suite file (TOML) is expected" in err and "looks like a data table" in err
+    assert "[[dataset]]" in err and "woodlot choose" in err
