@@ -47,7 +47,7 @@ def plain_loop(suite) -> float:
 
 
 def with_measure(text: str, on: bool) -> str:
-    text = re.sub(r"(?ms)^\[measure\].*?(?=^\[)", "", text)
+    text = re.sub(r"(?ms)^\[also_measure\].*?(?=^\[)", "", text)
     flag = "true" if on else "false"
     return text + f"\n[also_measure]\nmemory = {flag}\nmodel_size = {flag}\nsize_curve = {flag}\n"
 

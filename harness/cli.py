@@ -23,6 +23,7 @@ def _check(args) -> int:
 
 def _outcome(outputs) -> None:
     """The one ranking, the speedup lines and the short answer, when there are any."""
+    from harness.analysis.speedup import LEVEL
     from harness.report import words
     from harness.report.render import markdown_table
 
@@ -33,7 +34,7 @@ def _outcome(outputs) -> None:
               + markdown_table(outputs.tables["ranks"].display))
     if outputs.speedup is not None and not outputs.speedup.empty:
         print("\nParallel speedup of fitting at the most workers measured, serial fraction "
-              "(Amdahl's law) [95% interval]; see tables/speedup.md\n"
+              f"(Amdahl's law) [{LEVEL:.0%} interval]; see tables/speedup.md\n"
               + markdown_table(outputs.speedup))
     if outputs.verdict is not None:
         print("\nIn short (details in report.html):\n"

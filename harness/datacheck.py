@@ -12,9 +12,9 @@ module adds what a person should see before trusting a comparison on the table, 
   `ALONE_ROWS` rows, against all features together (histogram gradient boosting, same folds).
   Classification is scored per class, one class against the rest, by ROC AUC (a feature that
   gives away one class is flagged even when the others stay hard); regression by R². A
-  feature is flagged when its score is at least `NEAR_PERFECT` (AUC 0.98, R² 0.95); or when
-  it is at least `CLOSE_FLOOR` (AUC 0.90, R² 0.80), within `CLOSE_GAP` (0.05) of what all
-  features reach, and all features but it reach at least `OWN_SHARE` (0.01) less, i.e. it
+  feature is flagged when its score is at least `NEAR_PERFECT`; or when it is at least
+  `CLOSE_FLOOR`, within `CLOSE_GAP` of what all features reach, and all features but it
+  reach at least `OWN_SHARE` less, i.e. it
   carries what the other columns cannot make up for (a strong feature whose information
   other columns share, such as one of several tumour-size measurements, is not flagged).
   Such a feature is often computed from the target or only known after it; if it is truly

@@ -2,7 +2,7 @@
 efficiency S(p) / p, and the serial fraction f of Amdahl's law, S(p) = 1 / (f + (1 − f) / p)
 (Amdahl 1967), fitted by least squares on the measured speedups, f kept in [0, 1].
 
-Intervals (95 %) come from a bootstrap over repeats: each worker count's repeats are
+Intervals (at `LEVEL`) come from a bootstrap over repeats: each worker count's repeats are
 resampled, medians, speedups and f recomputed. With two worker counts (1 and p) the fit is
 exactly determined; its interval then reflects the repeats' spread only. Speedups at
 `EXTRAPOLATE_TO` cores are extrapolations of the fitted law, not measurements.
@@ -155,7 +155,7 @@ def summarize(frame: pd.DataFrame, noise_margin: float = 0.15,
         how = (f"exactly determined by {len(counts)} worker counts (1 and {counts[-1]})"
                if len(counts) == 2 else f"least squares over {len(counts)} worker counts")
         how += ("; no interval (one repeat)" if single else
-                "; 95% interval: bootstrap over repeats")
+                f"; {LEVEL:.0%} interval: bootstrap over repeats")
         if any(s < 1.0 for s in med_s[1:]):
             how += "; slower with more workers, which Amdahl's law cannot describe"
         fit.update(serial_fraction=f, serial_fraction_low=float(f_lo),

@@ -12,7 +12,7 @@ from matplotlib.figure import Figure
 from matplotlib.lines import Line2D
 from matplotlib.ticker import FixedLocator, FuncFormatter, NullFormatter, NullLocator
 
-from harness.analysis.speedup import amdahl_speedup
+from harness.analysis.speedup import LEVEL, amdahl_speedup
 from harness.report.plots import dataset_panels
 from harness.report.style import marker, plain
 
@@ -113,7 +113,8 @@ def speedup_plot(points: pd.DataFrame, fits: pd.DataFrame) -> Figure | None:
                      linestyle="none"), "hollow: noisy or busy point"),
              (Line2D([], [], linestyle="none"), "(markers offset sideways\n to stay visible)")]
     share = _legend_right(fig, handles, extra)
-    fig.suptitle("Parallel speedup of fitting (markers: median over repeats; bars: 95% "
+    fig.suptitle("Parallel speedup of fitting (markers: median over repeats; bars: "
+                 f"{LEVEL:.0%} "
                  "interval)", fontsize=12)
     fig.tight_layout(rect=(0, 0, share, 0.97))
     return fig

@@ -9,6 +9,9 @@ from harness.analysis.verdict import Verdict
 from harness.report.render import as_read, fmt_p, metric_label, number
 
 
+FEW_DATASETS = 5  # fewer datasets than this: the across-dataset tests have little power
+
+
 def names(items: list[str]) -> str:
     """``a``, ``a and b``, ``a, b and c``."""
     if len(items) <= 2:
@@ -34,7 +37,7 @@ def notes(v: Verdict) -> list[str]:
             f"{m} pair{'s' if m > 1 else ''} needs p ≤ {v.needed_p:.3g} for a first rejection, "
             "so the Wilcoxon–Holm verdict cannot tell any pair apart here. More datasets are "
             "needed for a verdict across datasets.")
-    if n < 5:
+    if n < FEW_DATASETS:
         out.append(f"Only {n} datasets: the across-dataset tests have little power and their "
                    "verdicts mean little; read the per-dataset tables.")
     if v.friedman.f_p > v.alpha:
@@ -95,7 +98,7 @@ def summary(v: Verdict) -> list[str]:
                      + "".join(f", {s} ({fmt_p(p)})" for s, p in rest))
     if beaten:
         parts.append("better than " + ", ".join(f"{s} ({fmt_p(p)})" for s, p in beaten))
-    out.append(f"By the Wilcoxon signed-rank test with Holm's correction it is "
+    out.append("By the Wilcoxon signed-rank test with Holm's correction it is "
                + "; and ".join(parts) + ".")
     if len(vs_best):
         runner = vs_best.iloc[0]
