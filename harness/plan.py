@@ -53,6 +53,9 @@ def make_plan(suite: Suite, datasets: dict[str, Dataset] | None = None) -> Plan:
         splits = make_splits(ds, p, spec.where)
         all_splits[spec.name] = splits
         metrics = p.metrics[ds.task]
+        # one split: the evidence for a difference is in the test rows (harness.row_evidence);
+        # in the key only when kept, so k-fold cells keep their keys
+        one_split = {"row_evidence": True} if len(splits) == 1 else {}
         for strategy in suite.strategies:
             if not strategy.supports(ds.task):
                 skipped.append((strategy.name, ds.name))
@@ -63,11 +66,11 @@ def make_plan(suite: Suite, datasets: dict[str, Dataset] | None = None) -> Plan:
                 key = unit_key(fingerprint=ds.fingerprint, estimator=estimator, train=s.train,
                                test=s.test, versions=versions,
                                settings={"metrics": list(metrics), "also_measure": extras,
-                                         "threads": 1})
+                                         "threads": 1, **one_split})
                 cells.append(Cell(key=key, dataset=ds.name, fingerprint=ds.fingerprint,
                                   task=ds.task, strategy=strategy, repeat=s.repeat, fold=s.fold,
                                   train=s.train, test=s.test, metrics=metrics, seed=p.seed,
-                                  **extras))
+                                  row_evidence=bool(one_split), **extras))
     return Plan(suite, datasets, all_splits, cells, skipped)
 
 

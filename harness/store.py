@@ -20,7 +20,7 @@ import pandas as pd
 from harness.errors import UserError
 
 STORE_NAME = "cells.sqlite"
-SCHEMA_VERSION = 2
+SCHEMA_VERSION = 3
 
 _SCHEMA = """
 CREATE TABLE IF NOT EXISTS meta (key TEXT PRIMARY KEY, value TEXT);
@@ -35,7 +35,8 @@ CREATE TABLE IF NOT EXISTS cells (
     task TEXT, repeat INTEGER, fold INTEGER, fingerprint TEXT, n_train INTEGER, n_test INTEGER,
     status TEXT, message TEXT, detail TEXT, scores TEXT, fit_seconds REAL,
     fit_cpu_seconds REAL, predict_seconds REAL, peak_memory_bytes INTEGER, model_bytes INTEGER,
-    curve TEXT, threads INTEGER, timing TEXT, worker TEXT, seconds REAL, finished REAL);
+    curve TEXT, threads INTEGER, timing TEXT, worker TEXT, seconds REAL, finished REAL,
+    row_evidence BLOB);
 CREATE TABLE IF NOT EXISTS speedup (
     id INTEGER PRIMARY KEY AUTOINCREMENT, run INTEGER, key TEXT, dataset TEXT, strategy TEXT,
     family TEXT, method TEXT, task TEXT, workers INTEGER, repeat INTEGER, status TEXT,
@@ -55,7 +56,7 @@ _CELL_COLUMNS = ("key", "run", "dataset", "strategy", "method", "family", "task"
                  "fold", "fingerprint", "n_train", "n_test", "status", "message", "detail",
                  "scores", "fit_seconds", "fit_cpu_seconds", "predict_seconds",
                  "peak_memory_bytes", "model_bytes", "curve", "threads", "timing", "worker",
-                 "seconds", "finished")
+                 "seconds", "finished", "row_evidence")
 
 
 def remove_store(folder: Path) -> None:

@@ -19,14 +19,17 @@ from harness.datasets import SOURCES, DatasetSpec
 from harness.datasets.openml import expand_benchmark_suite
 from harness.errors import UserError, closest
 from harness.names import RULE, is_name
+from harness.scorers import Margin, default_margin
 from harness.strategies import Strategy, resolve
 
 KFOLD, HOLDOUT, PUBLISHED = "k-fold", "holdout", "published"
 SPLIT_SCHEMES = (KFOLD, HOLDOUT, PUBLISHED)
 DEFAULT_METRICS = {"classification": ("accuracy", "balanced_accuracy", "neg_log_loss"),
                    "regression": ("neg_root_mean_squared_error", "r2")}
-SECTIONS = ("suite", "protocol", "also_measure", "dataset", "strategy", "speedup")
+SECTIONS = ("suite", "protocol", "also_measure", "equivalence", "dataset", "strategy",
+            "speedup")
 DATA_SUFFIXES = (".csv", ".tsv", ".txt", ".parquet", ".pq")
+DEFAULT_CERTAINTY = 0.95
 
 
 @dataclass(frozen=True)
@@ -58,6 +61,29 @@ class AlsoMeasure:
 
 
 @dataclass(frozen=True)
+class Equivalence:
+    """The ``[equivalence]`` section: per metric, the smallest difference that matters (the
+    half-width of its region of practical equivalence), and the probability a verdict needs
+    (``certainty``). Metrics not named get `harness.scorers.default_margin`."""
+
+    margins: dict[str, Margin] = field(default_factory=dict)
+    certainty: float = DEFAULT_CERTAINTY
+
+    def margin(self, metric: str) -> Margin:
+        return self.margins.get(metric) or default_margin(metric)
+
+    def settings(self) -> dict[str, Any]:
+        """As stored in a run's provenance (and read back by `from_settings`)."""
+        return {"certainty": self.certainty,
+                **{m: margin.setting() for m, margin in self.margins.items()}}
+
+    @classmethod
+    def from_settings(cls, settings: dict[str, Any] | None, where: str = "provenance") \
+            -> "Equivalence":
+        return _equivalence(settings or {}, where)
+
+
+@dataclass(frozen=True)
 class SpeedupSettings:
     """The ``[speedup]`` section: which strategies are timed alone at which worker counts."""
 
@@ -75,6 +101,7 @@ class Suite:
     description: str
     protocol: Protocol
     also_measure: AlsoMeasure
+    equivalence: Equivalence
     datasets: tuple[DatasetSpec, ...]
     strategies: tuple[Strategy, ...]
     speedup: SpeedupSettings | None
@@ -184,13 +211,15 @@ def load_suite(path: str | Path, *, expand: bool = True) -> Suite:
     if also.curve_points < 2:
         raise UserError(f"must be at least 2, got {also.curve_points}",
                         file=f"{path}: [also_measure]", field="curve_points")
+    equivalence = _equivalence(data.get("equivalence", {}), f"{path}: [equivalence]")
     datasets = _datasets(data.get("dataset", []), path, expand)
     strategies = _strategies(data.get("strategy", []), path)
     speedup = None
     if "speedup" in data:
         speedup = _speedup(data["speedup"], f"{path}: [speedup]", datasets, strategies)
     return Suite(path=path, name=name, description=head.get("description", ""),
-                 protocol=protocol, also_measure=also, datasets=tuple(datasets),
+                 protocol=protocol, also_measure=also, equivalence=equivalence,
+                 datasets=tuple(datasets),
                  strategies=tuple(strategies), speedup=speedup, text=text)
 
 
@@ -240,6 +269,43 @@ def _protocol(table: Any, where: str) -> Protocol:
     if "cell_timeout" in t:
         t["cell_timeout"] = parse_duration(t["cell_timeout"], where, "cell_timeout")
     return Protocol(**t)
+
+
+def _equivalence(table: Any, where: str) -> Equivalence:
+    """``certainty = 0.95`` and ``SCORER = width``: a number is a width in the metric's units as
+    people read it (0.01 of accuracy), a text such as ``"2%"`` a share of the best strategy's
+    value on each dataset."""
+    if not isinstance(table, dict):
+        raise UserError("[equivalence] must be a table", file=where)
+    known = set(get_scorer_names())
+    margins, certainty = {}, DEFAULT_CERTAINTY
+    for key, value in table.items():
+        if key == "certainty":
+            if isinstance(value, bool) or not isinstance(value, (int, float)) \
+                    or not 0.5 <= value < 1:
+                raise UserError(f"expected a probability of at least 0.5 and below 1, such as "
+                                f"0.95, got {value!r}", file=where, field=key)
+            certainty = float(value)
+            continue
+        if key not in known:
+            raise UserError(f"'{key}' is neither 'certainty' nor a scikit-learn scorer name"
+                            f"{closest(key, known | {'certainty'})}", file=where, field=key)
+        margins[key] = _margin(value, where, key)
+    return Equivalence(margins, certainty)
+
+
+def _margin(value: Any, where: str, key: str) -> Margin:
+    wrong = ("expected the smallest difference that matters: a positive number in the "
+             "metric's units (such as 0.01) or a share of the best value (such as \"2%\"), "
+             f"got {value!r}")
+    if isinstance(value, str):
+        m = re.fullmatch(r"\s*(\d+(?:\.\d+)?)\s*%\s*", value)
+        if not m or not 0 < float(m.group(1)) < 100:
+            raise UserError(wrong, file=where, field=key)
+        return Margin(float(m.group(1)) / 100, relative=True)
+    if isinstance(value, bool) or not isinstance(value, (int, float)) or value <= 0:
+        raise UserError(wrong, file=where, field=key)
+    return Margin(float(value))
 
 
 def _entry_name(entry: Any, path: Path, kind: str, i: int) -> tuple[str, str]:

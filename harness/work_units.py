@@ -58,6 +58,7 @@ class Cell:
     curve_points: int = 8
     threads: int = 1
     timing: str = "side by side"
+    row_evidence: bool = False  # keep per-row test evidence (datasets judged on one split)
 
     def identity(self) -> dict[str, Any]:
         return {"dataset": self.dataset, "strategy": self.strategy.name,

@@ -17,8 +17,9 @@ PACKAGE = Path(__file__).resolve().parents[1] / "harness"
 LAYERS = [
     ("harness.errors", "harness.files", "harness.names", "harness.versions", "harness.locks",
      "harness.provenance"),
-    ("harness.datasets", "harness.strategies", "harness.suite", "harness.datacheck"),
-    ("harness.splits", "harness.work_units", "harness.plan"),
+    ("harness.datasets", "harness.strategies", "harness.suite", "harness.datacheck",
+     "harness.scorers"),
+    ("harness.splits", "harness.work_units", "harness.row_evidence", "harness.plan"),
     ("harness.execution",),
     ("harness.store",),
     ("harness.analysis",),

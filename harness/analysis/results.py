@@ -12,7 +12,7 @@ from harness.work_units import OK
 ID_COLUMNS = ("key", "run", "dataset", "strategy", "method", "family", "task", "repeat", "fold",
               "fingerprint", "n_train", "n_test", "status", "message", "detail", "fit_seconds",
               "fit_cpu_seconds", "predict_seconds", "peak_memory_bytes", "model_bytes", "curve",
-              "threads", "timing", "worker", "seconds", "finished")
+              "threads", "timing", "worker", "seconds", "finished", "row_evidence")
 
 
 def metric_columns(frame: pd.DataFrame) -> list[str]:
@@ -48,6 +48,13 @@ def geometric_mean(values) -> float:
     return float(np.exp(np.mean(np.log(v)))) if len(v) else np.nan
 
 
+def standard_error(values) -> float:
+    """Standard error of the mean of the finite values (0 with fewer than two)."""
+    v = np.asarray(values, dtype=float)
+    v = v[np.isfinite(v)]
+    return float(np.std(v, ddof=1) / np.sqrt(len(v))) if len(v) > 1 else 0.0
+
+
 def pooled_sd(part: pd.DataFrame, metric: str) -> float:
     """Fold-to-fold standard deviation of ``metric`` pooled over the strategies of ``part``
     (one dataset): the square root of the mean of the strategies' variances."""
@@ -58,9 +65,10 @@ def pooled_sd(part: pd.DataFrame, metric: str) -> float:
 def strategy_means(frame: pd.DataFrame, primary: dict[str, str]) -> pd.DataFrame:
     """Per dataset × strategy over successful cells: ``dataset, strategy, family, method,
     metric, score, sd, cells, fit_seconds, predict_ms_per_1000_rows`` (means; ``sd`` of the
-    score over cells)."""
+    score over cells) and the standard errors of the two mean times (timing noise)."""
     cols = ["dataset", "strategy", "family", "method", "metric", "score", "sd", "cells",
-            "fit_seconds", "predict_ms_per_1000_rows"]
+            "fit_seconds", "predict_ms_per_1000_rows", "fit_seconds_se",
+            "predict_ms_per_1000_rows_se"]
     ok = ok_cells(frame)
     rows = []
     for (ds, st), part in ok.groupby(["dataset", "strategy"], sort=False):
@@ -68,11 +76,13 @@ def strategy_means(frame: pd.DataFrame, primary: dict[str, str]) -> pd.DataFrame
         v = part[metric].dropna()
         if v.empty:
             continue
-        per_1000 = predict_ms_per_1000_rows(part["predict_seconds"], part["n_test"]).mean()
+        per_1000 = predict_ms_per_1000_rows(part["predict_seconds"], part["n_test"])
         rows.append({"dataset": ds, "strategy": st, "family": part["family"].iloc[0],
                      "method": part["method"].iloc[0], "metric": metric,
                      "score": float(v.mean()),
                      "sd": float(v.std(ddof=1)) if len(v) > 1 else np.nan, "cells": len(v),
                      "fit_seconds": float(part["fit_seconds"].mean()),
-                     "predict_ms_per_1000_rows": float(per_1000)})
+                     "predict_ms_per_1000_rows": float(per_1000.mean()),
+                     "fit_seconds_se": standard_error(part["fit_seconds"]),
+                     "predict_ms_per_1000_rows_se": standard_error(per_1000)})
     return pd.DataFrame(rows, columns=cols)

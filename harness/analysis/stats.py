@@ -4,7 +4,9 @@ Within a dataset the scores come from ``r`` repeats of ``k``-fold cross-validati
 Those ``r·k`` scores are not independent (training sets overlap), so the plain
 paired t-test is far too eager to call a difference. The corrected resampled
 t-test of Nadeau & Bengio (2003), in the repeated k-fold form of Bouckaert &
-Frank (2004), widens the variance by ``n_test / n_train`` to account for it.
+Frank (2004), widens the variance by ``n_test / n_train`` to account for it — a
+heuristic (the true correlation depends on the learner). With one split the evidence is in
+the test rows: McNemar's exact test on paired per-row correctness.
 
 Across datasets each dataset counts once: strategies are ranked per dataset
 and compared with the Friedman test (plus the Iman–Davenport F), the Nemenyi
@@ -28,10 +30,9 @@ import pandas as pd
 from scipy import stats as _st
 
 __all__ = [
-    "TTestResult", "FriedmanResult", "DatasetSummary",
-    "corrected_interval", "corrected_ttest", "per_dataset_summary",
+    "FriedmanResult", "corrected_t", "mcnemar_exact",
     "average_ranks", "friedman", "nemenyi_critical_value", "nemenyi_cd", "nemenyi_groups",
-    "holm", "wilcoxon_holm", "win_tie_loss", "pareto_front",
+    "holm", "wilcoxon_holm", "wilcoxon_pairs", "tally", "pareto_front",
 ]
 
 
@@ -39,100 +40,27 @@ __all__ = [
 # Within one dataset: corrected resampled t-test
 # ---------------------------------------------------------------------------
 
-@dataclass(frozen=True)
-class TTestResult:
-    """Outcome of a corrected resampled t-test on paired scores ``a − b``.
-
-    Attributes
-    ----------
-    mean_diff : float
-        Mean of the per-fold differences ``a − b``.
-    t : float
-        Corrected t statistic (``±inf`` when every difference is the same non-zero value).
-    df : int
-        Degrees of freedom, ``r·k − 1``.
-    p : float
-        Two-sided p-value from Student's t with ``df`` degrees of freedom.
-    interval : tuple of float
-        Corrected confidence interval ``(low, high)`` for the mean difference.
-    level : float
-        Confidence level of ``interval``.
-    n : int
-        Number of paired scores used (``r·k``).
-    """
-
-    mean_diff: float
-    t: float
-    df: int
-    p: float
-    interval: tuple[float, float]
-    level: float
-    n: int
-
-
-def _corrected_se(values: np.ndarray, n_train: float, n_test: float) -> float:
-    """Corrected standard error ``sqrt((1/n + n_test/n_train) · var(values, ddof=1))``."""
-    if n_train <= 0 or n_test <= 0:
-        raise ValueError(f"n_train and n_test must be positive, got {n_train} and {n_test}")
-    n = len(values)
-    return float(np.sqrt((1.0 / n + n_test / n_train) * np.var(values, ddof=1)))
-
-
-def _as_scores(values: Sequence[float] | np.ndarray, what: str) -> np.ndarray:
-    arr = np.asarray(values, dtype=float).ravel()
-    if len(arr) < 2:
-        raise ValueError(f"{what} needs at least two values (repeats × folds), got {len(arr)}")
-    if not np.all(np.isfinite(arr)):
-        raise ValueError(f"{what} contains NaN or infinite values")
-    return arr
-
-
-def corrected_interval(scores: Sequence[float] | np.ndarray, n_train: float, n_test: float,
-                       level: float = 0.95) -> tuple[float, float, float]:
-    """Mean score over repeats × folds with its corrected confidence interval.
+def corrected_t(mean, var, n, ratio, alpha: float = 0.05):
+    """Corrected resampled t-test and interval, vectorised over pairs (or strategies).
 
     Parameters
     ----------
-    scores : array_like, shape (r·k,)
-        One strategy's scores, one per (repeat, fold) cell.
-    n_train, n_test : float
-        Training and test set sizes of a fold (use the mean if folds differ by one row).
-    level : float, default 0.95
-        Confidence level.
+    mean, var : array_like
+        Mean and variance (``ddof=1``) of ``n`` paired differences ``a − b`` (or of one
+        strategy's ``n`` scores, for its interval).
+    n : array_like
+        Number of (repeat, fold) cells; below 2 everything is NaN.
+    ratio : array_like
+        ``n_test / n_train`` of the folds.
+    alpha : float
+        Two-sided level; the interval is at ``1 − alpha``.
 
     Returns
     -------
-    mean, low, high : float
-        ``mean ± t_{(1+level)/2, n−1} · sqrt((1/n + n_test/n_train) · var(scores, ddof=1))``.
-        With zero variance the interval collapses to the mean.
-    """
-    x = _as_scores(scores, "scores")
-    if not 0 < level < 1:
-        raise ValueError(f"level must be in (0, 1), got {level}")
-    mean = float(x.mean())
-    half = _st.t.ppf(0.5 + level / 2, len(x) - 1) * _corrected_se(x, n_train, n_test)
-    return mean, mean - half, mean + half
-
-
-def corrected_ttest(a: Sequence[float] | np.ndarray, b: Sequence[float] | np.ndarray,
-                    n_train: float, n_test: float, level: float = 0.95) -> TTestResult:
-    """Corrected resampled t-test for paired repeated k-fold scores.
-
-    Parameters
-    ----------
-    a, b : array_like, shape (r·k,)
-        Scores of two strategies on the same (repeat, fold) cells, in the same order.
-    n_train, n_test : float
-        Training and test set sizes of a fold.
-    level : float, default 0.95
-        Confidence level of the reported interval for the mean difference.
-
-    Returns
-    -------
-    TTestResult
-        ``t = mean(d) / sqrt((1/(r·k) + n_test/n_train) · var(d, ddof=1))`` with
-        ``d = a − b`` and ``df = r·k − 1``; two-sided p. If every difference is the
-        same value the variance is zero: ``p = 1`` when that value is 0, ``p = 0`` otherwise.
+    t, p, low, high : ndarray
+        ``t = mean / sqrt((1/n + n_test/n_train) · var)`` with ``n − 1`` degrees of freedom;
+        two-sided ``p``; ``mean ± t_{1−α/2} · scale``. With zero variance ``t`` is 0 (mean 0)
+        or ±∞ and ``p`` 1 or 0, and the interval collapses to the mean.
 
     References
     ----------
@@ -140,114 +68,30 @@ def corrected_ttest(a: Sequence[float] | np.ndarray, b: Sequence[float] | np.nda
     Bouckaert, R. R. & Frank, E. (2004). Evaluating the replicability of significance tests
     for comparing learning algorithms. PAKDD.
     """
-    a_arr, b_arr = np.asarray(a, dtype=float).ravel(), np.asarray(b, dtype=float).ravel()
-    if a_arr.shape != b_arr.shape:
-        raise ValueError(f"a and b must have the same length, got {len(a_arr)} and {len(b_arr)}")
-    d = _as_scores(a_arr - b_arr, "differences")
-    n, df = len(d), len(d) - 1
-    mean = float(d.mean())
-    # Exactly-equal differences: treat as zero variance (floating noise in var would
-    # otherwise give a huge finite t).
-    if np.all(d == d[0]):
-        t = 0.0 if mean == 0 else float(np.copysign(np.inf, mean))
-        p = 1.0 if mean == 0 else 0.0
-        return TTestResult(mean, t, df, p, (mean, mean), level, n)
-    se = _corrected_se(d, n_train, n_test)
-    t = mean / se
-    p = float(2 * _st.t.sf(abs(t), df))
-    half = float(_st.t.ppf(0.5 + level / 2, df) * se)
-    return TTestResult(mean, float(t), df, p, (mean - half, mean + half), level, n)
+    mean, var, n, ratio = np.broadcast_arrays(*(np.asarray(x, dtype=float)
+                                                for x in (mean, var, n, ratio)))
+    ok = n >= 2
+    scale = np.where(ok, np.sqrt((1 / np.where(ok, n, 1) + ratio) * var), np.nan)
+    df = np.where(ok, n - 1, 1)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        t = np.where(scale > 0, mean / scale,
+                     np.where(mean == 0, 0.0, np.copysign(np.inf, mean)))
+    p = np.where(scale > 0, 2 * _st.t.sf(np.abs(t), df), (mean == 0) * 1.0)
+    half = _st.t.ppf(1 - alpha / 2, df) * scale
+    nan = np.full(mean.shape, np.nan)
+    return (np.where(ok, t, nan), np.where(ok, p, nan), np.where(ok, mean - half, nan),
+            np.where(ok, mean + half, nan))
 
 
-@dataclass(frozen=True)
-class DatasetSummary:
-    """Tidy outputs of :func:`per_dataset_summary`.
-
-    Attributes
-    ----------
-    strategies : DataFrame
-        One row per (dataset, strategy): ``dataset, strategy, cells, mean, low, high, level``.
-    pairs : DataFrame
-        One row per (dataset, pair a < b in first-appearance order): ``dataset, a, b, pairs,
-        mean_diff, t, df, p, low, high, tied``. ``mean_diff`` is ``a − b``; ``pairs`` is the
-        number of (repeat, fold) cells both strategies have.
-    """
-
-    strategies: pd.DataFrame
-    pairs: pd.DataFrame
-
-
-_STRATEGY_COLUMNS = ["dataset", "strategy", "cells", "mean", "low", "high", "level"]
-_PAIR_COLUMNS = ["dataset", "a", "b", "pairs", "mean_diff", "t", "df", "p", "low", "high", "tied"]
-
-
-def per_dataset_summary(frame: pd.DataFrame, metric: str, alpha: float = 0.05) -> DatasetSummary:
-    """Per dataset: each strategy's mean with a corrected interval, and pairwise tests.
-
-    Parameters
-    ----------
-    frame : DataFrame
-        One row per cell with columns ``dataset, strategy, repeat, fold, n_train, n_test``
-        and the column named by ``metric``. Rows whose metric is NaN are ignored (pass only
-        cells that ran successfully).
-    metric : str
-        Column holding the score.
-    alpha : float, default 0.05
-        Significance level; intervals are at confidence ``1 − alpha``.
-
-    Returns
-    -------
-    DatasetSummary
-        ``strategies`` and ``pairs`` tables (see :class:`DatasetSummary`). Pairs are matched on
-        (repeat, fold); cells only one strategy has are skipped. ``tied`` is True when the
-        corrected t-test does not reject equality at ``alpha``; with fewer than two matched
-        cells no test is possible, so t, p and the interval are NaN and ``tied`` is True.
-        ``n_train`` / ``n_test`` are averaged over the cells used.
-
-    Raises
-    ------
-    ValueError
-        If a column is missing or a (dataset, strategy, repeat, fold) cell appears twice.
-    """
-    need = ["dataset", "strategy", "repeat", "fold", "n_train", "n_test", metric]
-    missing = [c for c in need if c not in frame.columns]
-    if missing:
-        raise ValueError(f"frame lacks columns {missing}")
-    data = frame.loc[frame[metric].notna(), need]
-    key = ["dataset", "strategy", "repeat", "fold"]
-    dup = data.duplicated(key)
-    if dup.any():
-        first = data.loc[dup, key].iloc[0].tolist()
-        raise ValueError(f"cell {first} appears more than once")
-    level = 1 - alpha
-    srows, prows = [], []
-    for ds, part in data.groupby("dataset", sort=False):
-        cells = {st: g.set_index(["repeat", "fold"])
-                 for st, g in part.groupby("strategy", sort=False)}
-        for st, g in cells.items():
-            vals = g[metric].to_numpy(float)
-            if len(vals) >= 2:
-                mean, low, high = corrected_interval(vals, g["n_train"].mean(), g["n_test"].mean(),
-                                                     level)
-            else:
-                mean, low, high = float(vals.mean()), np.nan, np.nan
-            srows.append([ds, st, len(vals), mean, low, high, level])
-        for sa, sb in combinations(cells, 2):
-            ga, gb = cells[sa], cells[sb]
-            common = ga.index.intersection(gb.index).sort_values()
-            va = ga.loc[common, metric].to_numpy(float)
-            vb = gb.loc[common, metric].to_numpy(float)
-            if len(common) >= 2:
-                res = corrected_ttest(va, vb, ga.loc[common, "n_train"].mean(),
-                                      ga.loc[common, "n_test"].mean(), level)
-                prows.append([ds, sa, sb, len(common), res.mean_diff, res.t, res.df, res.p,
-                              *res.interval, bool(res.p > alpha)])
-            else:
-                diff = float(np.mean(va - vb)) if len(common) else np.nan
-                prows.append([ds, sa, sb, len(common), diff, np.nan, max(len(common) - 1, 0),
-                              np.nan, np.nan, np.nan, True])
-    return DatasetSummary(pd.DataFrame(srows, columns=_STRATEGY_COLUMNS),
-                          pd.DataFrame(prows, columns=_PAIR_COLUMNS))
+def mcnemar_exact(a_only, b_only) -> np.ndarray:
+    """McNemar's exact test on paired per-row correctness: two-sided binomial p-value of the
+    discordant rows (``a_only``: rows only a got right; ``b_only``: only b), under equal odds:
+    ``min(1, 2 · P(Bin(a_only + b_only, ½) ≤ min(a_only, b_only)))``; 1 without discordant
+    rows. Vectorised over pairs."""
+    a, b = np.asarray(a_only), np.asarray(b_only)
+    n = a + b
+    p = np.minimum(1.0, 2 * _st.binom.cdf(np.minimum(a, b), np.maximum(n, 1), 0.5))
+    return np.where(n > 0, p, 1.0)
 
 
 # ---------------------------------------------------------------------------
@@ -474,48 +318,30 @@ def holm(pvalues: Sequence[float] | np.ndarray,
 _DIFF_DECIMALS = 12
 
 
-def wilcoxon_holm(matrix: np.ndarray | pd.DataFrame, names: Sequence[str] | None = None,
-                  alpha: float = 0.05, zero_method: str = "zsplit") -> pd.DataFrame:
-    """Pairwise Wilcoxon signed-rank tests across datasets with Holm's correction.
+def wilcoxon_pairs(diffs: np.ndarray, a: Sequence[str], b: Sequence[str], alpha: float = 0.05,
+                   zero_method: str = "zsplit") -> pd.DataFrame:
+    """Wilcoxon signed-rank test of each row of ``diffs`` (pairs × datasets, ``a − b``, each
+    pair already on its own scale), with Holm's correction over the rows.
 
-    Parameters
-    ----------
-    matrix : array_like or DataFrame, shape (N, k)
-        Scores, one row per dataset, one column per strategy.
-    names : sequence of str, optional
-        Strategy names (defaults to the DataFrame's columns, else ``0 … k−1``).
-    alpha : float, default 0.05
-        Family-wise significance level for ``reject``.
-    zero_method : {"zsplit", "wilcox", "pratt"}, default "zsplit"
-        Handling of zero differences, passed to :func:`scipy.stats.wilcoxon`. ``"zsplit"``
-        splits their ranks between the two sums.
+    The p-value is from the exact null distribution (``method="exact"``, which SciPy ≥ 1.15
+    honours with ties and zeros too), so the smallest two-sided p with ``N`` datasets is
+    ``2 · 2^−N``. Differences are rounded to 12 decimal places before ranking, so that equal
+    differences are tied despite floating-point noise (``0.3 − 0.1`` and ``0.5 − 0.3`` differ
+    in the last bit). When every difference is zero the test is skipped: statistic NaN,
+    ``p = 1``.
 
-    Returns
-    -------
-    DataFrame
-        One row per pair ``a < b`` (column order): ``a, b, n_datasets, a_wins, b_wins,
-        median_diff, statistic, p, p_holm, reject``. ``median_diff`` is of ``a − b``.
-        When every difference is zero the test is skipped with statistic NaN and ``p = 1``.
-        ``statistic`` is SciPy's (the smaller of the two signed-rank sums, two-sided).
-
-    Notes
-    -----
-    Differences are rounded to 12 decimal places before ranking, so that equal differences
-    are tied despite floating-point noise (``0.3 − 0.1`` and ``0.5 − 0.3`` differ in the last bit).
+    Returns one row per pair: ``a, b, n_datasets, a_wins, b_wins, median_diff, statistic, p,
+    p_holm, reject``; ``statistic`` is SciPy's (the smaller signed-rank sum).
     """
-    arr, default = _matrix(matrix)
-    names = list(names) if names is not None else default
-    if len(names) != arr.shape[1]:
-        raise ValueError(f"{len(names)} names for {arr.shape[1]} strategies")
     rows = []
-    for i, j in combinations(range(arr.shape[1]), 2):
-        d = np.round(arr[:, i] - arr[:, j], _DIFF_DECIMALS)
+    for name_a, name_b, row in zip(a, b, np.atleast_2d(np.asarray(diffs, dtype=float))):
+        d = np.round(row, _DIFF_DECIMALS)
         if np.all(d == 0):
             stat, p = np.nan, 1.0
         else:
-            res = _st.wilcoxon(d, zero_method=zero_method)
+            res = _st.wilcoxon(d, zero_method=zero_method, method="exact")
             stat, p = float(res.statistic), float(res.pvalue)
-        rows.append({"a": names[i], "b": names[j], "n_datasets": len(d),
+        rows.append({"a": name_a, "b": name_b, "n_datasets": len(d),
                      "a_wins": int(np.sum(d > 0)), "b_wins": int(np.sum(d < 0)),
                      "median_diff": float(np.median(d)), "statistic": stat, "p": p})
     out = pd.DataFrame(rows, columns=["a", "b", "n_datasets", "a_wins", "b_wins",
@@ -524,32 +350,37 @@ def wilcoxon_holm(matrix: np.ndarray | pd.DataFrame, names: Sequence[str] | None
     return out
 
 
-def win_tie_loss(pairs: pd.DataFrame, higher_is_better: bool = True) -> pd.DataFrame:
-    """Count, per pair of strategies, datasets won, tied and lost.
+def wilcoxon_holm(matrix: np.ndarray | pd.DataFrame, names: Sequence[str] | None = None,
+                  alpha: float = 0.05, zero_method: str = "zsplit") -> pd.DataFrame:
+    """`wilcoxon_pairs` for every pair ``a < b`` (column order) of a score matrix (datasets ×
+    strategies), on the raw differences of the scores."""
+    arr, default = _matrix(matrix)
+    names = list(names) if names is not None else default
+    if len(names) != arr.shape[1]:
+        raise ValueError(f"{len(names)} names for {arr.shape[1]} strategies")
+    i, j = zip(*combinations(range(arr.shape[1]), 2))
+    return wilcoxon_pairs((arr[:, list(i)] - arr[:, list(j)]).T, [names[x] for x in i],
+                          [names[x] for x in j], alpha, zero_method)
 
-    Parameters
-    ----------
-    pairs : DataFrame
-        Per-dataset test outcomes with columns ``a, b, mean_diff, tied`` (``mean_diff`` is
-        ``a − b``), e.g. ``per_dataset_summary(...).pairs``.
-    higher_is_better : bool, default True
-        Whether a positive ``mean_diff`` is a win for ``a``.
 
-    Returns
-    -------
-    DataFrame
-        One row per pair: ``a, b, wins, ties, losses`` from ``a``'s side. A dataset is a tie
-        when ``tied`` is True or the mean difference is exactly zero.
+def tally(pairs: pd.DataFrame) -> pd.DataFrame:
+    """Per pair of strategies, how many datasets each per-dataset verdict had, from ``a``'s
+    side: ``wins`` (a better), ``equivalent``, ``undecided``, ``losses`` (b better). A
+    descriptive tally: each dataset's verdict is uncorrected for the many pairs and datasets.
+
+    ``pairs`` needs ``a, b, better, verdict`` (as `harness.analysis.per_dataset.judge` gives).
     """
-    missing = [c for c in ("a", "b", "mean_diff", "tied") if c not in pairs.columns]
+    missing = [c for c in ("a", "b", "better", "verdict") if c not in pairs.columns]
     if missing:
         raise ValueError(f"pairs lacks columns {missing}")
-    sign = np.sign(pairs["mean_diff"].to_numpy(float)) * (1 if higher_is_better else -1)
-    tied = pairs["tied"].to_numpy(bool) | (sign == 0) | np.isnan(sign)
+    better = pairs["better"].to_numpy(object)
     outcome = pd.DataFrame({"a": pairs["a"].to_numpy(), "b": pairs["b"].to_numpy(),
-                            "wins": ~tied & (sign > 0), "ties": tied,
-                            "losses": ~tied & (sign < 0)})
-    return (outcome.groupby(["a", "b"], sort=False)[["wins", "ties", "losses"]]
+                            "wins": better == pairs["a"].to_numpy(),
+                            "equivalent": pairs["verdict"].to_numpy() == "practically equivalent",
+                            "undecided": pairs["verdict"].to_numpy() == "undecided",
+                            "losses": better == pairs["b"].to_numpy()})
+    return (outcome.groupby(["a", "b"], sort=False)[["wins", "equivalent", "undecided",
+                                                      "losses"]]
             .sum().astype(int).reset_index())
 
 
@@ -560,7 +391,8 @@ def pareto_front(points: Mapping[str, tuple[float, float]] | pd.DataFrame) -> pd
     ----------
     points : mapping or DataFrame
         Name → ``(score, cost)``, or a DataFrame indexed by name with columns
-        ``score`` and ``cost``.
+        ``score`` and ``cost``, and optionally ``cost_noise``: the standard error of each
+        cost (timing noise).
 
     Returns
     -------
@@ -568,19 +400,27 @@ def pareto_front(points: Mapping[str, tuple[float, float]] | pd.DataFrame) -> pd
         Indexed by name, in input order: ``score, cost, on_front, dominated_by``.
         Entry *j* dominates *i* when ``score_j ≥ score_i`` and ``cost_j ≤ cost_i`` with at
         least one strict; ``dominated_by`` lists the dominating names (empty on the front).
-        Identical points do not dominate each other.
+        Identical points do not dominate each other. With ``cost_noise``, costs count as equal
+        unless they differ by more than twice the standard error of their difference,
+        ``2 · sqrt(se_i² + se_j²)``, so a verdict does not flip on timing noise.
     """
     if isinstance(points, pd.DataFrame):
         frame = points[["score", "cost"]].astype(float)
+        noise = (points["cost_noise"].astype(float).fillna(0.0).to_numpy()
+                 if "cost_noise" in points else np.zeros(len(points)))
     else:
         frame = pd.DataFrame.from_dict(dict(points), orient="index", columns=["score", "cost"],
                                        dtype=float)
+        noise = np.zeros(len(frame))
     if not np.all(np.isfinite(frame.to_numpy())):
         raise ValueError("scores and costs must be finite")
     s, c = frame["score"].to_numpy(), frame["cost"].to_numpy()
     names = list(frame.index)
-    dom = ((s[:, None] >= s[None, :]) & (c[:, None] <= c[None, :])
-           & ((s[:, None] > s[None, :]) | (c[:, None] < c[None, :])))  # dom[j, i]: j dominates i
+    margin = 2 * np.sqrt(noise[:, None] ** 2 + noise[None, :] ** 2)
+    cheaper = c[None, :] - c[:, None] > margin            # [j, i]: j cheaper than i beyond noise
+    not_dearer = c[:, None] - c[None, :] <= margin
+    dom = ((s[:, None] >= s[None, :]) & not_dearer
+           & ((s[:, None] > s[None, :]) | cheaper))  # dom[j, i]: j dominates i
     out = frame.copy()
     out["dominated_by"] = [[names[j] for j in np.flatnonzero(dom[:, i])]
                            for i in range(len(names))]

@@ -1,14 +1,22 @@
-"""From the results frame to verdicts: which differences are real, and at what cost.
+"""From the results frame to verdicts: which differences are real, which are too small to
+matter, which the data cannot tell — and at what cost.
 
-The statistics themselves are the pure functions of `harness.analysis.stats`; this module is
-the glue between the results frame (one row per cell) and those functions. The words a reader
-sees are made from the `Verdict` in `harness.report.words`.
+The statistics are the pure functions of `harness.analysis.stats` (frequentist),
+`harness.analysis.bayes` (posteriors) and `harness.analysis.per_dataset` (one dataset); this
+module is the glue between the results frame (one row per cell) and those functions. The words
+a reader sees are made from the `Verdict` in `harness.report.words`.
+
+Three verdicts, everywhere
+    For a pair on a dataset, or across datasets: *better* when the probability that one is
+    better by more than the region of practical equivalence (the suite's ``[equivalence]``, per
+    metric; `harness.scorers.default_margin`) reaches the certainty (default 0.95); *practically
+    equivalent* when the probability of a difference within the region does; *undecided*
+    otherwise, with what more data would help.
 
 Per dataset
-    Each dataset is judged on its first metric (the first the suite lists for its task). Every
-    strategy gets its mean over repeats × folds with the corrected interval, and every pair the
-    corrected resampled t-test on the (repeat, fold) cells both have; a pair is *tied* when the
-    test does not reject equality at ``alpha``.
+    Each dataset is judged on its first metric (the first the suite lists for its task); see
+    `harness.analysis.per_dataset` (Bayesian correlated t-test over folds, or the per-row
+    evidence of a single split).
 
 Across datasets
     Each dataset counts once. Classification and regression datasets are pooled by rank (a rank
@@ -20,28 +28,24 @@ Across datasets
     fold a failure rate into an accuracy ranking (failures have their own table). Everything left
     out is named in `Verdict.left_out`.
 
-    On the block: average ranks, the Friedman test with the Iman–Davenport F, the Nemenyi
-    critical difference, and pairwise Wilcoxon signed-rank tests with Holm's correction — the
-    default verdict, following Benavoli, Corani & Mangili (2016), "Should we really use post-hoc
-    tests based on mean-ranks?", JMLR 17: a mean-rank test's outcome for two strategies depends
-    on which other strategies are in the comparison; the Wilcoxon test of a pair does not.
-    Win/tie/loss counts per pair use the per-dataset corrected t-test.
-
-    The Wilcoxon test ranks the sizes of the per-dataset differences, so those must share a
-    scale. Raw differences are used when every dataset of the block has the same first metric
-    and it is unit-free (accuracy, r2, AUC, …); otherwise each dataset's differences are divided
-    by that dataset's fold-to-fold standard deviation (pooled over strategies), i.e. measured in
-    units of the dataset's own noise.
-
-    The one ranking of the report is the block's average ranks: a strategy missing on some
-    dataset is named in ``left_out``, never ranked over fewer datasets.
+    The verdict of a pair is the Bayesian signed-rank test on the per-dataset differences, each
+    divided by that dataset's region half-width (so the region is ±1 on every dataset, whatever
+    the metric), with the Hodges–Lehmann median difference as the effect size. Beside it: average
+    ranks, the Friedman test with the Iman–Davenport F, the Nemenyi critical difference, and
+    pairwise Wilcoxon signed-rank tests with Holm's correction (Demšar 2006; Benavoli, Corani &
+    Mangili 2016 on why pairwise tests rather than mean ranks). The Wilcoxon test ranks the sizes
+    of the differences, so they must share a scale: raw differences when every dataset has the
+    same unit-free metric; otherwise each pair's difference on a dataset is divided by the
+    standard deviation of that pair's own fold-to-fold differences there (the region half-width
+    for a single split), so adding or dropping a third strategy never changes a pair's p-value.
 
 Cost
     Pareto fronts of score against mean fit time and against prediction time per 1,000 rows,
     per dataset (mean score) and over all datasets (average rank against the geometric mean over
     datasets of the per-dataset mean times; the geometric mean because times of different
     datasets differ by orders of magnitude, and a ratio between strategies should not depend on
-    which dataset is slowest — common practice for summarising times).
+    which dataset is slowest — common practice for summarising times). Costs count as equal
+    unless they differ by more than twice the standard error of their difference (timing noise).
 """
 
 from __future__ import annotations
@@ -51,26 +55,18 @@ from dataclasses import dataclass, field
 import numpy as np
 import pandas as pd
 
-from harness.analysis import stats
-from harness.analysis.results import (geometric_mean, ok_cells, pooled_sd, primary_metrics,
-                                      strategy_means)
+from harness.analysis import bayes, stats
+from harness.analysis.per_dataset import (BETTER, EQUIVALENT, PAIR_COLUMNS, UNDECIDED, judge,
+                                         word)
+from harness.analysis.results import geometric_mean, ok_cells, primary_metrics, strategy_means
+from harness.scorers import Margin, unit_free
+from harness.suite import Equivalence
 
-__all__ = ["Verdict", "verdict", "tied_runs", "complete_block", "ALPHA", "unit_free"]
+__all__ = ["Verdict", "verdict", "tied_runs", "complete_block", "ALPHA", "BETTER",
+           "EQUIVALENT", "UNDECIDED", "TRIANGLE_POINTS"]
 
-ALPHA = 0.05  # the significance level of every test and recommendation (1 − level intervals)
-
-# Scorers whose values have no unit and the same range on every dataset (proportions,
-# correlations, r2): differences of these can be compared across datasets as they are.
-_UNIT_FREE = ("accuracy", "balanced_accuracy", "top_k_accuracy", "r2", "explained_variance",
-              "roc_auc", "average_precision", "f1", "precision", "recall", "jaccard",
-              "matthews_corrcoef", "adjusted_rand_score")
-
-
-def unit_free(metric: str) -> bool:
-    """Whether a scorer's differences mean the same on every dataset (``f1_macro`` counts as
-    ``f1``; ``d2_*`` scores are unit-free like r2)."""
-    return metric.startswith("d2_") or any(metric == u or metric.startswith(u + "_")
-                                           for u in _UNIT_FREE)
+ALPHA = 0.05  # the significance level of every frequentist test (1 − level intervals)
+TRIANGLE_POINTS = 3000  # posterior samples of each pair kept for the triangle plot
 
 
 @dataclass
@@ -80,16 +76,24 @@ class Verdict:
     Attributes
     ----------
     alpha : float
-        Significance level of every test (intervals are at ``1 − alpha``).
+        Significance level of the frequentist tests (intervals are at ``1 − alpha``).
+    certainty : float
+        The probability a verdict of *better* or *practically equivalent* needs.
+    margins : dict
+        Metric → `Margin`: the region of practical equivalence of each metric judged.
     primary : dict
         Dataset → the metric it is judged on.
     intervals : DataFrame
         Per dataset × strategy: ``dataset, metric, strategy, family, cells, planned, mean, low,
-        high, best, tied_with_best, fit_seconds, predict_ms_per_1000_rows``. ``planned`` counts
-        every stored cell (failed ones too); ``best`` marks the highest mean.
+        high, best, p_near_best, standing, margin, evidence, fit_seconds,
+        predict_ms_per_1000_rows``. ``planned`` counts every stored cell (failed ones too);
+        ``best`` marks the highest mean; ``p_near_best`` is the probability of being within the
+        region of the best or better (the best not fixed in advance).
     pairs : DataFrame
-        Per dataset × pair: ``dataset, metric, a, b, pairs, mean_diff, low, high, t, df, p,
-        tied, better`` (``mean_diff`` is ``a − b``; ``better`` names the winner or is empty).
+        Per dataset × pair (`harness.analysis.per_dataset.PAIR_COLUMNS`): the frequentist test
+        (``t, p, low, high``: corrected t-test, or McNemar / paired t-test on test rows) and
+        the posterior (``p_a, p_eq, p_b``), the ``verdict`` word, ``better`` (the winner or
+        empty) and ``advice`` for an undecided pair.
     matrix : DataFrame
         The complete block: datasets × strategies, mean first-metric score.
     left_out : list of str
@@ -104,16 +108,22 @@ class Verdict:
         Runs of strategies (in rank order) not told apart by each test: the bars of the
         diagrams.
     across : DataFrame
-        Per pair (``a`` ranked better than ``b``): ``a, b, rank_a, rank_b, rank_diff,
-        nemenyi_differs, n_datasets, a_wins, b_wins, median_diff, statistic, p, p_holm,
-        wilcoxon_differs, wins, ties, losses`` (the last three: per-dataset corrected t-test
-        outcomes from ``a``'s side).
+        Per pair (``a`` ranked ahead of ``b``): ``a, b, rank_a, rank_b, rank_diff,
+        nemenyi_differs, n_datasets, p_a, p_eq, p_b, verdict, better, advice, effect,
+        effect_low, effect_high, a_wins, b_wins, median_diff, statistic, p, p_holm,
+        wilcoxon_differs, wins, equivalent, undecided, losses`` (the last four: a descriptive
+        tally of the per-dataset verdicts from ``a``'s side). ``effect``: Hodges–Lehmann median
+        difference ``a − b`` in `effect_unit`.
+    posterior : dict
+        ``(a, b)`` → samples (``TRIANGLE_POINTS × 3``) of the signed-rank posterior (b better,
+        equivalent, a better): the points of the triangle plot.
     scale : str
-        How the Wilcoxon differences were scaled: ``"raw"`` or ``"noise"``.
+        How the Wilcoxon differences were scaled: ``"raw"`` or ``"pair noise"``.
+    effect_unit : str
+        The unit of ``across.effect``: a metric name (raw) or ``"region"`` (half-widths).
     costs : DataFrame
         Per strategy over the block: ``strategy, family, method, fit_seconds,
-        predict_ms_per_1000_rows``
-        (geometric means over datasets).
+        predict_ms_per_1000_rows`` (geometric means over datasets) and their standard errors.
     pareto : DataFrame
         ``scope, cost_kind, strategy, score, cost, on_front, dominated_by``; scope is a dataset
         name or ``"all datasets"`` (whose score is the average rank, lower is better).
@@ -124,6 +134,8 @@ class Verdict:
     """
 
     alpha: float
+    certainty: float
+    margins: dict[str, Margin]
     primary: dict[str, str]
     intervals: pd.DataFrame
     pairs: pd.DataFrame
@@ -135,7 +147,9 @@ class Verdict:
     nemenyi_groups: list[list[str]] = field(default_factory=list)
     wilcoxon_groups: list[list[str]] = field(default_factory=list)
     across: pd.DataFrame | None = None
+    posterior: dict[tuple[str, str], np.ndarray] = field(default_factory=dict)
     scale: str = "raw"
+    effect_unit: str = "region"
     costs: pd.DataFrame | None = None
     pareto: pd.DataFrame | None = None
     smallest_p: float | None = None
@@ -155,21 +169,37 @@ class Verdict:
     def best(self) -> str | None:
         return None if self.ranks is None or self.ranks.empty else str(self.ranks.index[0])
 
+    @property
+    def leaders(self) -> list[str]:
+        """The strategies sharing the best average rank (equal ranks are equal)."""
+        if self.ranks is None or self.ranks.empty:
+            return []
+        top = self.ranks.iloc[0]
+        return [str(s) for s, r in self.ranks.items() if np.isclose(r, top)]
+
     def standing(self, dataset: str) -> dict:
-        """On one dataset: ``best`` (highest mean), ``tied`` (not told apart from it, best
-        mean first), and the cheapest of those to fit and to predict."""
+        """On one dataset: ``best`` (highest mean), ``near`` (probability of being within the
+        region of the best or better at least the certainty, best mean first, the best
+        included when it qualifies), and the cheapest of ``near`` (or the best alone) to fit
+        and to predict."""
         part = self.intervals[(self.intervals["dataset"] == dataset)
                               & self.intervals["mean"].notna()]
         if part.empty:
             return {}
         part = part.sort_values("mean", ascending=False, kind="stable")
         best = str(part.loc[part["best"], "strategy"].iloc[0])
-        group = part[part["tied_with_best"] | part["best"]]
-        return {"best": best,
-                "tied": [str(s) for s in group["strategy"] if s != best],
+        near = part[part["p_near_best"].fillna(0) >= self.certainty]
+        group = near if len(near) else part[part["strategy"] == best]
+        return {"best": best, "near": [str(s) for s in near["strategy"]],
                 "cheapest_to_fit": str(group.loc[group["fit_seconds"].idxmin(), "strategy"]),
                 "cheapest_to_predict": str(group.loc[group["predict_ms_per_1000_rows"].idxmin(),
                                                      "strategy"])}
+
+    def region_text(self) -> str:
+        """The region used, per metric judged: ``accuracy ±0.01; RMSE ±1 % of the best``."""
+        from_metric = {m: self.margins[m] for m in dict.fromkeys(self.primary.values())}
+        return "; ".join(f"{m} ±{g.width * 100:g} % of the best" if g.relative
+                         else f"{m} ±{g.width:g}" for m, g in from_metric.items())
 
 
 # ------------------------------------------------------------------ building blocks
@@ -230,19 +260,10 @@ def tied_runs(order: list[str], differs: dict[frozenset, bool]) -> list[list[str
     return groups
 
 
-def _noise_scale(ok: pd.DataFrame, dataset: str, metric: str, strategies) -> float:
-    """Pooled fold-to-fold sd of ``metric`` on ``dataset`` over ``strategies``."""
-    part = ok[(ok["dataset"] == dataset) & ok["strategy"].isin(list(strategies))]
-    sd = pooled_sd(part, metric)
-    if not np.isfinite(sd) or sd <= 0:  # every strategy constant: fall back to the spread
-        sd = float(part.groupby("strategy")[metric].mean().std(ddof=1))
-    return sd if np.isfinite(sd) and sd > 0 else 1.0
-
-
 # ------------------------------------------------------------------ the verdict
 
 def verdict(frame: pd.DataFrame, metrics: dict[str, list[str]] | None = None,
-            alpha: float = ALPHA) -> Verdict:
+            equivalence: Equivalence | None = None, alpha: float = ALPHA) -> Verdict:
     """Per-dataset and across-dataset verdicts and cost fronts for a results frame.
 
     Parameters
@@ -252,17 +273,23 @@ def verdict(frame: pd.DataFrame, metrics: dict[str, list[str]] | None = None,
     metrics : dict, optional
         Task → metric names as the suite lists them (the first is each dataset's metric);
         default: the first metric column with values.
+    equivalence : Equivalence, optional
+        The region of practical equivalence per metric and the certainty (the suite's
+        ``[equivalence]``); default: the documented defaults.
     alpha : float, default 0.05
-        Significance level of every test.
+        Significance level of the frequentist tests.
     """
     if not 0 < alpha < 1:
         raise ValueError(f"alpha must be in (0, 1), got {alpha}")
+    equivalence = equivalence or Equivalence()
     primary = primary_metrics(frame, metrics)
     ok = ok_cells(frame)
     means = strategy_means(frame, primary)
-    intervals, pairs = _per_dataset(frame, ok, primary, means, alpha)
-    v = Verdict(alpha=alpha, primary=primary, intervals=intervals, pairs=pairs,
-                matrix=pd.DataFrame())
+    margins = {m: equivalence.margin(m) for m in dict.fromkeys(primary.values())}
+    intervals, pairs = _per_dataset(frame, ok, primary, means, margins, equivalence.certainty,
+                                    alpha)
+    v = Verdict(alpha=alpha, certainty=equivalence.certainty, margins=margins, primary=primary,
+                intervals=intervals, pairs=pairs, matrix=pd.DataFrame())
     if means.empty:
         return v
     scores = means.pivot(index="dataset", columns="strategy", values="score")
@@ -289,60 +316,45 @@ def verdict(frame: pd.DataFrame, metrics: dict[str, list[str]] | None = None,
     v.costs = _costs(means, block)
     v.pareto = _pareto(means, v)
     if n >= 2 and k >= 2:
-        _across(v, ok, block, pairs, alpha)
+        _across(v, block, pairs)
     return v
 
 
-def _per_dataset(frame, ok, primary, means, alpha):
+def _per_dataset(frame, ok, primary, means, margins, certainty, alpha):
     parts_i, parts_p = [], []
     for metric in dict.fromkeys(primary.values()):
         names = [d for d, m in primary.items() if m == metric]
         sub = ok[ok["dataset"].isin(names)]
         if sub.empty:
             continue
-        summary = stats.per_dataset_summary(sub, metric, alpha)
-        parts_i.append(summary.strategies.assign(metric=metric))
-        parts_p.append(summary.pairs.assign(metric=metric))
+        strategies, pairs = judge(sub, metric, margins[metric], certainty, alpha)
+        parts_i.append(strategies)
+        parts_p.append(pairs)
     icols = ["dataset", "metric", "strategy", "family", "cells", "planned", "mean", "low", "high",
-             "best", "tied_with_best", "fit_seconds", "predict_ms_per_1000_rows"]
-    pcols = ["dataset", "metric", "a", "b", "pairs", "mean_diff", "low", "high", "t", "df", "p",
-             "tied", "better"]
+             "best", "p_near_best", "standing", "margin", "evidence", "fit_seconds",
+             "predict_ms_per_1000_rows"]
     if not parts_i:
-        return pd.DataFrame(columns=icols), pd.DataFrame(columns=pcols)
+        return pd.DataFrame(columns=icols), pd.DataFrame(columns=PAIR_COLUMNS)
     iv = pd.concat(parts_i, ignore_index=True)
     pr = pd.concat(parts_p, ignore_index=True)
-    pr["tied"] = pr["tied"].astype(bool)
-    pr["better"] = [("" if t or not np.isfinite(d) or d == 0 else a if d > 0 else b)
-                    for a, b, d, t in zip(pr["a"], pr["b"], pr["mean_diff"], pr["tied"])]
     planned = frame.groupby(["dataset", "strategy"]).size()
     iv["planned"] = [int(planned.get((d, s), 0)) for d, s in zip(iv["dataset"], iv["strategy"])]
     fam = frame.groupby("strategy")["family"].first()
     iv["family"] = iv["strategy"].map(fam)
     cost = means.set_index(["dataset", "strategy"])
-    iv["fit_seconds"] = [cost.loc[(d, s), "fit_seconds"] for d, s in zip(iv["dataset"],
-                                                                           iv["strategy"])]
-    iv["predict_ms_per_1000_rows"] = [cost.loc[(d, s), "predict_ms_per_1000_rows"]
-                                      for d, s in zip(iv["dataset"], iv["strategy"])]
-    iv["best"] = False
-    iv["tied_with_best"] = False
-    for ds, part in iv.groupby("dataset", sort=False):
-        best = part.loc[part["mean"].idxmax(), "strategy"]
-        iv.loc[part.index, "best"] = part["strategy"] == best
-        tied = {best}
-        for _, r in pr[(pr["dataset"] == ds) & ((pr["a"] == best) | (pr["b"] == best))].iterrows():
-            if r["tied"]:
-                tied.add(r["b"] if r["a"] == best else r["a"])
-        iv.loc[part.index, "tied_with_best"] = part["strategy"].isin(tied)
+    idx = pd.MultiIndex.from_arrays([iv["dataset"], iv["strategy"]])
+    iv["fit_seconds"] = cost["fit_seconds"].reindex(idx).to_numpy()
+    iv["predict_ms_per_1000_rows"] = cost["predict_ms_per_1000_rows"].reindex(idx).to_numpy()
     # strategies with cells on a dataset but none successful: shown, with no score
     have = set(zip(iv["dataset"], iv["strategy"]))
     extra = [{"dataset": d, "metric": primary[d], "strategy": s, "family": fam.get(s),
-              "cells": 0, "planned": int(c), "best": False, "tied_with_best": False}
+              "cells": 0, "planned": int(c), "best": False, "standing": "no successful cell"}
              for (d, s), c in planned.items() if (d, s) not in have and d in primary]
     if extra:
         iv = pd.concat([iv, pd.DataFrame(extra)], ignore_index=True)
         order = {d: i for i, d in enumerate(dict.fromkeys(iv["dataset"]))}
         iv = iv.sort_values("dataset", key=lambda s: s.map(order), kind="stable")
-    return iv[icols].reset_index(drop=True), pr[pcols]
+    return iv[icols].reset_index(drop=True), pr
 
 
 def _costs(means: pd.DataFrame, block: pd.DataFrame) -> pd.DataFrame:
@@ -350,12 +362,19 @@ def _costs(means: pd.DataFrame, block: pd.DataFrame) -> pd.DataFrame:
     rows = []
     for st in block.columns:
         part = sub[sub["strategy"] == st]
-        rows.append({"strategy": st, "family": part["family"].iloc[0] if len(part) else None,
-                     "method": part["method"].iloc[0] if len(part) else None,
-                     "fit_seconds": geometric_mean(part["fit_seconds"]),
-                     "predict_ms_per_1000_rows": geometric_mean(part["predict_ms_per_1000_rows"])})
+        row = {"strategy": st, "family": part["family"].iloc[0] if len(part) else None,
+               "method": part["method"].iloc[0] if len(part) else None}
+        for col in _COST_KINDS.values():
+            gm = geometric_mean(part[col])
+            # standard error of the geometric mean from the per-dataset relative errors
+            rel = (part[col + "_se"] / part[col]).to_numpy(float)
+            rel = rel[np.isfinite(rel)]
+            row[col] = gm
+            row[col + "_se"] = gm * float(np.sqrt(np.sum(rel ** 2))) / max(len(rel), 1)
+        rows.append(row)
     return pd.DataFrame(rows, columns=["strategy", "family", "method", "fit_seconds",
-                                       "predict_ms_per_1000_rows"])
+                                       "predict_ms_per_1000_rows", "fit_seconds_se",
+                                       "predict_ms_per_1000_rows_se"])
 
 
 _COST_KINDS = {"fit": "fit_seconds", "predict": "predict_ms_per_1000_rows"}
@@ -376,58 +395,83 @@ def _pareto(means: pd.DataFrame, v: Verdict) -> pd.DataFrame:
     rows = []
     for ds, part in means.groupby("dataset", sort=False):
         for kind, col in _COST_KINDS.items():
-            pts = part.set_index("strategy")[["score", col]].rename(columns={col: "cost"})
+            pts = part.set_index("strategy")[["score", col, col + "_se"]].rename(
+                columns={col: "cost", col + "_se": "cost_noise"})
             rows += _front_rows(ds, kind, pts, rank_scale=False)
     if v.ranks is not None and v.costs is not None and len(v.ranks) >= 2:
         c = v.costs.set_index("strategy")
         for kind, col in _COST_KINDS.items():
-            pts = pd.DataFrame({"score": v.ranks, "cost": c[col].reindex(v.ranks.index)})
+            pts = pd.DataFrame({"score": v.ranks, "cost": c[col].reindex(v.ranks.index),
+                                "cost_noise": c[col + "_se"].reindex(v.ranks.index)})
             rows += _front_rows("all datasets", kind, pts, rank_scale=True)
     return pd.DataFrame(rows, columns=["scope", "cost_kind", "strategy", "score", "cost",
                                        "on_front", "dominated_by"])
 
 
-def _across(v: Verdict, ok: pd.DataFrame, block: pd.DataFrame, pairs: pd.DataFrame,
-            alpha: float) -> None:
+def _across(v: Verdict, block: pd.DataFrame, pairs: pd.DataFrame) -> None:
     n, k = block.shape
     order = [str(s) for s in v.ranks.index]
     block = block[order]
     v.friedman = stats.friedman(block)
-    v.cd = stats.nemenyi_cd(k, n, alpha)
+    v.cd = stats.nemenyi_cd(k, n, v.alpha)
     v.nemenyi_groups = stats.nemenyi_groups(v.ranks, v.cd)
-    metrics = {v.primary[d] for d in block.index}
-    if len(metrics) == 1 and unit_free(next(iter(metrics))):
-        diffs = block
-        v.scale = "raw"
-    else:
-        scale = pd.Series({d: _noise_scale(ok, d, v.primary[d], order) for d in block.index})
-        diffs = block.div(scale, axis=0)
-        v.scale = "noise"
-    w = stats.wilcoxon_holm(diffs, alpha=alpha)
-    in_block = pairs[pairs["dataset"].isin(block.index) & pairs["a"].isin(order)
-                     & pairs["b"].isin(order)]
-    # orient every per-dataset pair as (better-ranked, worse-ranked)
+    ia, ib = (list(x) for x in zip(*[(i, j) for i in range(k) for j in range(i + 1, k)]))
+    names_a, names_b = [order[i] for i in ia], [order[j] for j in ib]
+    x = block.to_numpy(float)
+    raw = (x[:, ia] - x[:, ib]).T                                   # pairs × datasets
+    width = v.intervals.drop_duplicates("dataset").set_index("dataset")["margin"] \
+        .reindex(block.index).to_numpy(float)
+    in_region = raw / width                                         # region half-widths
+    # per-dataset pairs, oriented (a ranked ahead, b)
+    here = pairs[pairs["dataset"].isin(block.index) & pairs["a"].isin(order)
+                 & pairs["b"].isin(order)]
     pos = {s: i for i, s in enumerate(order)}
-    flip = [pos[a] > pos[b] for a, b in zip(in_block["a"], in_block["b"])]
-    oriented = in_block.assign(
-        a=np.where(flip, in_block["b"], in_block["a"]),
-        b=np.where(flip, in_block["a"], in_block["b"]),
-        mean_diff=np.where(flip, -in_block["mean_diff"], in_block["mean_diff"]))
-    wtl = stats.win_tie_loss(oriented).set_index(["a", "b"])
+    flip = np.array([pos[a] > pos[b] for a, b in zip(here["a"], here["b"])], dtype=bool)
+    oriented = here.assign(a=np.where(flip, here["b"], here["a"]),
+                           b=np.where(flip, here["a"], here["b"]))
+    metrics = {v.primary[d] for d in block.index}
+    single = len(metrics) == 1 and unit_free(next(iter(metrics)))
+    if single:
+        w_diffs, v.scale = raw, "raw"
+    else:  # each pair on each dataset in units of its own fold-to-fold differences
+        sd = oriented.set_index(["a", "b", "dataset"])["sd"]
+        pair_sd = np.array([[sd.get((a, b, d), np.nan) for d in block.index]
+                            for a, b in zip(names_a, names_b)], dtype=float)
+        pair_sd = np.where(np.isfinite(pair_sd) & (pair_sd > 0), pair_sd, width[None, :])
+        w_diffs, v.scale = raw / pair_sd, "pair noise"
+    w = stats.wilcoxon_pairs(w_diffs, names_a, names_b, v.alpha)
+    probs, kept = bayes.signed_rank(in_region, 1.0, keep=TRIANGLE_POINTS)
+    verdicts = word(probs, v.certainty)
+    same_margin = single and not next(iter(v.margins.values())).relative
+    v.effect_unit = next(iter(metrics)) if same_margin else "region"
+    effects = [bayes.hodges_lehmann(row, 1 - v.alpha) for row in (raw if same_margin
+                                                                   else in_region)]
+    tallies = stats.tally(oriented).set_index(["a", "b"])
     rows = []
-    for _, r in w.iterrows():
-        a, b = r["a"], r["b"]
-        counts = wtl.loc[(a, b)] if (a, b) in wtl.index else pd.Series(
-            {"wins": 0, "ties": 0, "losses": 0})
+    for p, (a, b) in enumerate(zip(names_a, names_b)):
+        counts = tallies.loc[(a, b)] if (a, b) in tallies.index else pd.Series(
+            {"wins": 0, "equivalent": 0, "undecided": 0, "losses": 0})
         diff = float(v.ranks[b] - v.ranks[a])
+        code = verdicts[p]
+        need = (bayes.datasets_needed(in_region[p], 1.0, v.certainty) if code == "" else 0)
+        r = w.iloc[p]
         rows.append({"a": a, "b": b, "rank_a": float(v.ranks[a]), "rank_b": float(v.ranks[b]),
                      "rank_diff": diff, "nemenyi_differs": bool(diff >= v.cd),
-                     "n_datasets": int(r["n_datasets"]), "a_wins": int(r["a_wins"]),
-                     "b_wins": int(r["b_wins"]), "median_diff": float(r["median_diff"]),
-                     "statistic": r["statistic"], "p": float(r["p"]),
-                     "p_holm": float(r["p_holm"]), "wilcoxon_differs": bool(r["reject"]),
-                     "wins": int(counts["wins"]), "ties": int(counts["ties"]),
-                     "losses": int(counts["losses"])})
+                     "n_datasets": n, "p_a": probs[p, 2], "p_eq": probs[p, 1],
+                     "p_b": probs[p, 0],
+                     "verdict": BETTER if code in ("a", "b") else
+                     EQUIVALENT if code == "equivalent" else UNDECIDED,
+                     "better": a if code == "a" else b if code == "b" else "",
+                     "datasets_needed": need,
+                     "effect": effects[p][0], "effect_low": effects[p][1],
+                     "effect_high": effects[p][2],
+                     "a_wins": int(r["a_wins"]), "b_wins": int(r["b_wins"]),
+                     "median_diff": float(r["median_diff"]), "statistic": r["statistic"],
+                     "p": float(r["p"]), "p_holm": float(r["p_holm"]),
+                     "wilcoxon_differs": bool(r["reject"]),
+                     **{c: int(counts[c]) for c in ("wins", "equivalent", "undecided",
+                                                     "losses")}})
+        v.posterior[(a, b)] = kept[p]
     v.across = pd.DataFrame(rows)
     differs = {frozenset((r["a"], r["b"])): r["wilcoxon_differs"] for r in rows}
     v.wilcoxon_groups = tied_runs(order, differs)
@@ -435,4 +479,4 @@ def _across(v: Verdict, ok: pd.DataFrame, block: pd.DataFrame, pairs: pd.DataFra
     # Exact two-sided Wilcoxon signed-rank p-values are multiples of 2^-N; the smallest, when
     # one strategy wins on every dataset, is 2 · 2^-N (Wilcoxon's null distribution:
     # every sign pattern equally likely). Holm's first step compares it with alpha / m.
-    v.smallest_p, v.needed_p = 2.0 ** (1 - n), alpha / m
+    v.smallest_p, v.needed_p = 2.0 ** (1 - n), v.alpha / m

@@ -82,6 +82,7 @@ def session(path: str | Path, *, out: str | Path | None = None, command: str | N
             prov = provenance.collect(command)
             prov.update(suite=str(suite.path), suite_name=suite.name,
                         metrics={k: list(v) for k, v in suite.protocol.metrics.items()},
+                        equivalence=suite.equivalence.settings(),
                         timing=timing,
                         **(executor.describe() if executor is not None
                            else {"executor": "none"}))

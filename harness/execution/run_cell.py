@@ -17,10 +17,11 @@ import numpy as np
 from sklearn.metrics import check_scoring, get_scorer
 from threadpoolctl import threadpool_limits
 
-from harness.datasets import Dataset
+from harness.datasets import CLASSIFICATION, Dataset
 from harness.execution.measure import measured
 from harness.execution.preprocess import (final_estimator, transform_for_members,
                                           with_preprocessing)
+from harness.row_evidence import encode
 from harness.work_units import ERROR, OK, Cell
 
 # --------------------------------------------------------------------------- running
@@ -153,6 +154,10 @@ def run_cell(cell: Cell, dataset: Dataset) -> dict[str, Any]:
             scores = scorer(timed, X_test, y_test)
             if "predict" not in timed.seconds:
                 timed.predict(X_test)
+            evidence = None
+            if cell.row_evidence:  # untimed: the timed predictions stay the scorers'
+                evidence = encode(y_test, model.predict(X_test),
+                                  classification=cell.task == CLASSIFICATION)
             curve = None
             if cell.size_curve:
                 curve = size_curve(model, X_test, y_test, cell.metrics[0], cell.curve_points)
@@ -161,7 +166,7 @@ def run_cell(cell: Cell, dataset: Dataset) -> dict[str, Any]:
                    predict_seconds=timed.seconds["predict"],
                    peak_memory_bytes=fit.peak_bytes,
                    model_bytes=len(pickle.dumps(model, protocol=5)) if cell.model_size else None,
-                   curve=curve)
+                   curve=curve, row_evidence=evidence)
     except Exception as exc:  # the estimator's failure is a result, not a crash
         row.update(status=ERROR, message=f"{type(exc).__name__}: {exc}".splitlines()[0][:500],
                    detail=traceback.format_exc()[-4000:])
