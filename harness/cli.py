@@ -37,8 +37,8 @@ def _outcome(outputs) -> None:
               f"(Amdahl's law) [{LEVEL:.0%} interval]; see tables/speedup.md\n"
               + markdown_table(outputs.speedup))
     if outputs.verdict is not None:
-        print("\nIn short (details in report.html):\n"
-              + "\n".join(f"- {s}" for s in words.summary(outputs.verdict)) + "\n")
+        print("\nIn short (details in summary.md and report.html):\n"
+              + "\n".join(f"- {s}" for s in words.bottom_line(outputs.verdict)) + "\n")
 
 
 def _run(args) -> int:

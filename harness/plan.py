@@ -66,7 +66,8 @@ def make_plan(suite: Suite, datasets: dict[str, Dataset] | None = None) -> Plan:
                 key = unit_key(fingerprint=ds.fingerprint, estimator=estimator, train=s.train,
                                test=s.test, versions=versions,
                                settings={"metrics": list(metrics), "also_measure": extras,
-                                         "threads": 1, **one_split})
+                                         "threads": 1, "strategy": strategy.name,
+                                         **one_split})
                 cells.append(Cell(key=key, dataset=ds.name, fingerprint=ds.fingerprint,
                                   task=ds.task, strategy=strategy, repeat=s.repeat, fold=s.fold,
                                   train=s.train, test=s.test, metrics=metrics, seed=p.seed,

@@ -18,7 +18,7 @@ import numpy as np
 
 from harness.strategies import Strategy
 
-CELL_FORMAT = 2  # bump when the meaning of a stored cell changes
+CELL_FORMAT = 3  # bump when the meaning of a stored cell changes
 OK, ERROR, TIMEOUT = "ok", "error", "timeout"
 
 

@@ -142,8 +142,8 @@ def _folds(strategies, pairs, x, i, j, ratio, width, certainty, alpha, folds):
 
 def _repeats_text(repeats: int) -> str:
     if repeats == 0:
-        return ("more repeats cannot settle it (the fold-to-fold correction keeps the "
-                "posterior too wide); more rows would")
+        return ("more repeats cannot settle it, since the fold-to-fold correction keeps the "
+                "posterior too wide; more rows would")
     if repeats > 100:
         return "more than 100 repeats would be needed"
     return f"about {repeats} repeats would settle it"

@@ -195,11 +195,9 @@ class Verdict:
                 "cheapest_to_predict": str(group.loc[group["predict_ms_per_1000_rows"].idxmin(),
                                                      "strategy"])}
 
-    def region_text(self) -> str:
-        """The region used, per metric judged: ``accuracy ±0.01; RMSE ±1 % of the best``."""
-        from_metric = {m: self.margins[m] for m in dict.fromkeys(self.primary.values())}
-        return "; ".join(f"{m} ±{g.width * 100:g} % of the best" if g.relative
-                         else f"{m} ±{g.width:g}" for m, g in from_metric.items())
+    def judged_margins(self) -> dict[str, Margin]:
+        """Metric → region, for the metrics datasets are judged on, in order."""
+        return {m: self.margins[m] for m in dict.fromkeys(self.primary.values())}
 
 
 # ------------------------------------------------------------------ building blocks
@@ -398,7 +396,8 @@ def _pareto(means: pd.DataFrame, v: Verdict) -> pd.DataFrame:
             pts = part.set_index("strategy")[["score", col, col + "_se"]].rename(
                 columns={col: "cost", col + "_se": "cost_noise"})
             rows += _front_rows(ds, kind, pts, rank_scale=False)
-    if v.ranks is not None and v.costs is not None and len(v.ranks) >= 2:
+    if v.ranks is not None and v.costs is not None and len(v.ranks) >= 2 \
+            and len(v.matrix) >= 2:
         c = v.costs.set_index("strategy")
         for kind, col in _COST_KINDS.items():
             pts = pd.DataFrame({"score": v.ranks, "cost": c[col].reindex(v.ranks.index),

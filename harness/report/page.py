@@ -31,12 +31,15 @@ CAUTION = ("**Caution.** A benchmark win does not transfer automatically. Scores
            "touches people (credit, health, hiring, insurance and the like) follow the rules that "
            "apply to you, including checks for fairness and for changes in the data over time.")
 
-# (id, title) of every section, in page order; the speedup section only when the store has a
-# run. The tests check that each of these is in the page and visible.
+# (id, title) of every section, in page order; the recommendation only for `woodlot choose`,
+# the across-dataset sections only with at least two datasets, the speedup section only when
+# the store has a speedup run. The tests check that each shown is in the page and visible.
 SECTIONS = [
+    ("recommendation", "Recommendation"),
     ("verdict", "The short answer"),
     ("ranks", "Ranks across datasets"),
     ("pairs-across", "Which differences hold up across datasets"),
+    ("pictures", "How sure: each pair across datasets"),
     ("critical-difference", "Critical difference diagrams"),
     ("datasets", "Dataset by dataset"),
     ("cost", "Accuracy against cost"),
@@ -63,7 +66,8 @@ th,td{border:1px solid #ddd;padding:.22rem .5rem;text-align:left;vertical-align:
 th{background:#f2f2f2}td.num{text-align:right;font-variant-numeric:tabular-nums}
 tr.best td{background:#e6f4ea;font-weight:600}tr.tied td{background:#f3f9f4}
 tr.worse td{color:#666}tr.missing td{color:#a33}
-.verdict li{margin:.3rem 0}.note{background:#fff8e1;border-left:4px solid #f0b400;
+.verdict li{margin:.3rem 0}.bottom{font-size:1.08rem;background:#eef4fb;
+ border-left:4px solid #1f4e79;padding:.6rem .9rem}.note{background:#fff8e1;border-left:4px solid #f0b400;
  padding:.5rem .8rem;margin:.6rem 0}
 .caution{background:#fdecea;border-left:4px solid #c62828;padding:.7rem 1rem}
 img{max-width:100%;height:auto;border:1px solid #eee;margin:.4rem 0}
@@ -91,6 +95,9 @@ class PageContent:
     provenance: list[tuple[str, Any]] = field(default_factory=list)
     suite_text: str = ""
     has_speedup: bool = False
+    # woodlot choose: its sentences, then (title, items) such as warnings
+    recommendation: list[str] = field(default_factory=list)
+    recommendation_sections: list[tuple[str, list[str]]] = field(default_factory=list)
 
 
 # ------------------------------------------------------------------ small helpers
@@ -120,14 +127,41 @@ def _img(c: PageContent, name: str, alt: str) -> str:
 
 # ------------------------------------------------------------------ sections
 
+def _recommendation_section(c: PageContent) -> str:
+    items = "".join(f"<li>{esc(x)}</li>" for x in c.recommendation)
+    parts = [f'<ul class="verdict">{items}</ul>']
+    for title, lines in c.recommendation_sections:
+        parts.append(f"<h3>{esc(title)}</h3><ul>"
+                     + "".join(f"<li>{esc(x)}</li>" for x in lines) + "</ul>")
+    return "".join(parts)
+
+
 def _verdict_section(c: PageContent) -> str:
     v = c.verdict
     if v is None:
         return "<p>The store has no accuracy cells, so there is nothing to compare yet.</p>"
-    items = "".join(f"<li>{esc(s)}</li>" for s in words.summary(v))
-    return (f'<ul class="verdict">{items}</ul><p class="small">Every test uses α = '
-            f"{v.alpha:g}. Ranks and tests count each dataset once; the per-dataset verdicts "
-            "use the corrected resampled t-test over repeats × folds.</p>")
+    bottom = "".join(f'<p class="bottom">{esc(s)}</p>' for s in words.bottom_line(v))
+    items = "".join(f"<li>{esc(s)}</li>" for s in words.details(v))
+    return (f'{bottom}<ul class="verdict">{items}</ul><p class="small">Verdicts: better, '
+            "practically equivalent or undecided, from the posterior probability of each at "
+            f"the certainty {v.certainty:.0%} ({esc(words.region(v))}). Ranks and tests count "
+            "each dataset once; the per-dataset verdicts use the Bayesian correlated t-test over "
+            "repeats × folds, or the test rows when a dataset has one split. The frequentist "
+            f"tests use α = {v.alpha:g}.</p>")
+
+
+def _pictures_section(c: PageContent) -> str:
+    if "probability_bars" not in c.images:
+        return "<p>Needs at least two datasets and two strategies scored on all of them.</p>"
+    return ("<p>For each pair (first vs second, the first ranked ahead), the bar splits "
+            "the probability between the first being better by more than the region of "
+            "practical equivalence, the two being practically equivalent, and the second being "
+            "better. A verdict needs one part to reach the dotted line.</p>"
+            + _img(c, "probability_bars", "probabilities of each outcome per pair")
+            + "<p>The triangles show the same posterior as a cloud of samples: each dot is one "
+              "plausible set of the three probabilities; a cloud packed into one corner is a "
+              "clear verdict, a cloud spread over two regions an undecided one.</p>"
+            + _img(c, "posterior_triangles", "posterior triangle per pair"))
 
 
 def _ranks_section(c: PageContent) -> str:
@@ -244,9 +278,14 @@ def _caution_section() -> str:
 # ------------------------------------------------------------------ the page
 
 def render(c: PageContent) -> str:
+    across = c.verdict is not None and c.verdict.tested
     sections = {
-        "verdict": _verdict_section(c), "ranks": _ranks_section(c),
-        "pairs-across": _pairs_across_section(c), "critical-difference": _cd_section(c),
+        "recommendation": _recommendation_section(c) if c.recommendation else None,
+        "verdict": _verdict_section(c),
+        "ranks": _ranks_section(c) if across else None,
+        "pairs-across": _pairs_across_section(c) if across else None,
+        "pictures": _pictures_section(c) if across else None,
+        "critical-difference": _cd_section(c) if across else None,
         "datasets": _datasets_section(c), "cost": _cost_section(c),
         "ensemble-size": _ensemble_section(c),
         "speedup": _speedup_section(c) if c.has_speedup else None,

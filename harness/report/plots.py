@@ -16,19 +16,31 @@ from harness.report.render import as_read, lower_is_better, metric_heading
 from harness.report.style import marker, plain, strategy_colors
 
 
-def grid(n: int, max_cols: int = 3, size=(4.6, 3.6)) -> tuple[Figure, list]:
-    """A figure with ``n`` panels in rows of at most ``max_cols``."""
+MIN_WIDTH = 8.0  # inches: room for a title and a legend of seven methods under one panel
+
+
+def grid(n: int, max_cols: int = 3, size=(4.6, 3.6), extra: float = 0.9) -> tuple[Figure, list]:
+    """A figure with ``n`` panels in rows of at most ``max_cols`` (at least `MIN_WIDTH` wide;
+    ``extra`` inches of height for the title and legend)."""
     cols = min(max_cols, n)
     rows = math.ceil(n / cols)
-    fig = Figure(figsize=(size[0] * cols, size[1] * rows + 0.9))
+    fig = Figure(figsize=(max(size[0] * cols, MIN_WIDTH), size[1] * rows + extra))
     axes = fig.subplots(rows, cols, squeeze=False)
     for ax in axes.flat[n:]:
         ax.set_visible(False)
     return fig, list(axes.flat)
 
 
-def legend_below(fig: Figure, handles_labels: dict, ncol: int) -> float:
+def legend_columns(fig: Figure, labels) -> int:
+    """As many legend columns as fit the figure's width for labels this long."""
+    longest = max((len(str(x)) for x in labels), default=10)
+    per = 0.45 + 0.075 * longest  # inches: marker, gap and text at font size 9
+    return max(1, min(len(labels), int(fig.get_size_inches()[0] // per)))
+
+
+def legend_below(fig: Figure, handles_labels: dict, ncol: int | None = None) -> float:
     """A legend under the panels; returns the share of the height it takes."""
+    ncol = ncol or legend_columns(fig, handles_labels)
     rows = math.ceil(len(handles_labels) / ncol)
     fig.legend(list(handles_labels.values()), list(handles_labels.keys()), loc="lower center",
                ncol=ncol, frameon=False, fontsize=9, bbox_to_anchor=(0.5, 0.0))
@@ -59,11 +71,12 @@ def _front_line(ax, points: pd.DataFrame, higher_is_better: bool = True):
 
 
 def dataset_panels(frame: pd.DataFrame, colors_from: pd.DataFrame | None = None,
-                   max_cols: int = 3, size=(4.6, 3.6)) -> tuple[Figure, list, dict]:
+                   max_cols: int = 3, size=(4.6, 3.6),
+                   extra: float = 0.9) -> tuple[Figure, list, dict]:
     """A figure with one panel per dataset of ``frame``: (figure, [(axes, dataset, its
     rows)], strategy colours over the strategies of ``colors_from``, default ``frame``)."""
     datasets = list(dict.fromkeys(frame["dataset"]))
-    fig, axes = grid(len(datasets), max_cols, size)
+    fig, axes = grid(len(datasets), max_cols, size, extra)
     panels = [(ax, ds, frame[frame["dataset"] == ds]) for ax, ds in zip(axes, datasets)]
     c = frame if colors_from is None else colors_from
     return fig, panels, strategy_colors(dict(zip(c["strategy"], c["method"])))
@@ -75,7 +88,7 @@ def score_vs_fit_time(means: pd.DataFrame) -> Figure | None:
     strategy_means`."""
     if means.empty:
         return None
-    fig, panels, colors = dataset_panels(means)
+    fig, panels, colors = dataset_panels(means, extra=1.3)
     handles = {}
     for ax, ds, g in panels:
         g = g.set_index("strategy")
@@ -95,11 +108,16 @@ def score_vs_fit_time(means: pd.DataFrame) -> Figure | None:
         ax.set_xlabel("mean fit time per fold (s, log scale)")
         ax.set_ylabel(metric_heading(metric), fontsize=9)
         ax.grid(True, which="both", alpha=0.3)
-    fig.suptitle("Test score against fit time (bars: ± 1 sd over folds; dashed: Pareto front)",
-                 fontsize=12)
-    bottom = legend_below(fig, handles, ncol=min(4, len(handles)))
-    fig.tight_layout(rect=(0, bottom, 1, 0.96))
+    fig.suptitle("Test score against fit time\n(bars: ± 1 sd over folds; dashed: Pareto front)",
+                 fontsize=11)
+    bottom = legend_below(fig, handles)
+    fig.tight_layout(rect=(0, bottom, 1, _top(fig, 2)))
     return fig
+
+
+def _top(fig: Figure, lines: int = 1) -> float:
+    """The share of the height below a suptitle of ``lines`` lines."""
+    return 1 - (0.2 + 0.25 * lines) / fig.get_size_inches()[1]
 
 
 def rank_vs_fit_time(ranks: pd.Series, costs: pd.DataFrame, n_datasets: int) -> Figure | None:
@@ -161,6 +179,6 @@ def size_curves(ok: pd.DataFrame, primary: dict[str, str]) -> Figure | None:
         ax.set_ylabel(metric_heading(metric), fontsize=9)
         ax.grid(True, which="both", alpha=0.3)
     fig.suptitle("Test score as the ensemble grows (mean over folds)", fontsize=12)
-    bottom = legend_below(fig, handles, ncol=min(4, len(handles)))
-    fig.tight_layout(rect=(0, bottom, 1, 0.96))
+    bottom = legend_below(fig, handles)
+    fig.tight_layout(rect=(0, bottom, 1, _top(fig)))
     return fig

@@ -8,9 +8,10 @@ import pandas as pd
 
 from harness.analysis.results import (metric_columns, ok_cells, predict_ms_per_1000_rows)
 from harness.analysis.speedup import BUSY_CORES, EXTRAPOLATE_TO, LEVEL
-from harness.analysis.verdict import Verdict
+from harness.analysis.verdict import EQUIVALENT, Verdict
 from harness.report.render import (Table, as_read, interval, lower_is_better,
                                    metric_heading, metric_label, number, p_text)
+from harness.report.words import rank_places, region_text
 from harness.work_units import OK
 
 COST_LABELS = {"fit": "mean fit time (s)", "predict": "prediction time per 1,000 rows (ms)"}
@@ -95,73 +96,87 @@ def failures(frame: pd.DataFrame) -> Table:
 
 # ------------------------------------------------------------------ from the verdict
 
-def standing_text(r) -> str:
-    """'best', 'tied with best', 'worse than best' or 'no successful cell'."""
-    if pd.isna(r["mean"]):
-        return "no successful cell"
-    return "best" if r["best"] else "tied with best" if r["tied_with_best"] else "worse than best"
+def _prob(p) -> str:
+    return "" if p is None or pd.isna(p) else f"{p:.2f}"
 
 
-def pair_outcome(r) -> str:
-    if pd.isna(r["p"]):
-        return "not testable (fewer than 2 shared cells)" if r["pairs"] < 2 else "tied"
-    return "tied" if r["tied"] else f"{r['better']} better"
+def verdict_text(r) -> str:
+    """``a better``, ``practically equivalent`` or ``undecided``."""
+    return f"{r['better']} better" if r["better"] else r["verdict"]
 
 
 def intervals(v: Verdict) -> Table:
-    """Per dataset: each strategy's mean of the first metric with its corrected interval."""
+    """Per dataset: each strategy's mean of the first metric with its corrected interval and
+    its standing against the best."""
     level = _level(v)
     rows, classes = [], []
     for ds, part in v.intervals.groupby("dataset", sort=False):
         part = part.iloc[part["mean"].fillna(-np.inf).to_numpy().argsort(kind="stable")[::-1]]
         metric = part["metric"].iloc[0]
         for _, r in part.iterrows():
-            s = standing_text(r)
+            s = r["standing"]
             rows.append({"dataset": ds, "strategy": r["strategy"], "family": r["family"],
                          f"mean [{level} interval]": _read_interval(metric, r["mean"], r["low"],
                                                                     r["high"]),
-                         "standing": s, "cells": f"{int(r['cells'])}/{int(r['planned'])}",
+                         "standing": s,
+                         "P(within region of best)": _prob(r["p_near_best"]),
+                         "cells": f"{int(r['cells'])}/{int(r['planned'])}",
                          "fit s": r["fit_seconds"],
                          "predict ms / 1,000 rows": r["predict_ms_per_1000_rows"]})
-            classes.append({"best": "best", "tied with best": "tied",
-                            "worse than best": "worse"}.get(s, "missing"))
+            classes.append({"best": "best", "equivalent to best": "tied",
+                            "worse than best": "worse"}.get(s, "" if pd.notna(r["mean"])
+                                                            else "missing"))
     titles = {ds: f"{ds}: {metric_heading(m)}" for ds, m in v.primary.items()}
     return Table("intervals", "Mean score per dataset with its corrected interval",
                  v.intervals, pd.DataFrame(rows), group="dataset" if rows else None,
                  group_titles=titles, row_classes=classes,
                  intro=(f"Mean of each dataset's first metric over repeats × folds with its "
-                        f"{level} corrected interval (Nadeau & Bengio 2003; Bouckaert & Frank "
-                        "2004). Tied with best: the corrected resampled t-test against the "
-                        f"best strategy does not reject equality at α = {v.alpha:g}. Cells: "
-                        "successful of stored."))
+                        f"{level} corrected interval (Nadeau & Bengio 2003; the n_test/n_train "
+                        "correction is a heuristic), kept within the metric's range. "
+                        "P(within region of best): the posterior probability that the strategy "
+                        "is within the region of practical equivalence of the best or better, "
+                        "with the best not fixed in advance (all strategies sampled jointly). "
+                        f"Standing: equivalent to best when that reaches {v.certainty:.0%}, "
+                        f"worse when it is at most {1 - v.certainty:.0%}, else undecided. "
+                        f"Region: {region_text(v)}. Cells: successful of stored."))
 
 
 def pairs(v: Verdict) -> Table:
-    """Per dataset: the corrected resampled t-test of every pair."""
+    """Per dataset: every pair's verdict, its probabilities and the frequentist test."""
     rows, classes = [], []
     for _, r in v.pairs.iterrows():
         metric = r["metric"]
         sign = -1 if lower_is_better(metric) else 1
         lo, hi = sorted([sign * r["low"], sign * r["high"]]) if pd.notna(r["low"]) \
             else (np.nan, np.nan)
-        rows.append({"dataset": r["dataset"], "a": r["a"], "b": r["b"], "cells": r["pairs"],
+        rows.append({"dataset": r["dataset"], "a": r["a"], "b": r["b"],
+                     "evidence": f"{int(r['pairs']):,} {r['evidence']}",
                      "a − b [interval]": interval(sign * r["mean_diff"], lo, hi),
-                     "t": number(r["t"], 3), "p": p_text(r["p"]),
-                     "outcome": pair_outcome(r)})
-        classes.append("" if r["tied"] else "best")
-    titles = {ds: f"{ds}: {metric_heading(m)}" for ds, m in v.primary.items()}
-    return Table("pairs", "Pairwise tests per dataset", v.pairs, pd.DataFrame(rows),
+                     "test": r["test"], "p": p_text(r["p"]),
+                     "P(a better)": _prob(r["p_a"]), "P(equivalent)": _prob(r["p_eq"]),
+                     "P(b better)": _prob(r["p_b"]), "verdict": verdict_text(r),
+                     "what would decide it": r["advice"]})
+        classes.append("best" if r["better"] else "tied" if r["verdict"] == EQUIVALENT else "")
+    titles = {ds: f"{ds}: {metric_heading(m)}, region ±{number(w)}"
+              for ds, m, w in zip(v.intervals["dataset"], v.intervals["metric"],
+                                  v.intervals["margin"]) if pd.notna(w)}
+    return Table("pairs", "Pairwise verdicts per dataset", v.pairs, pd.DataFrame(rows),
                  group="dataset" if rows else None, group_titles=titles, row_classes=classes,
-                 intro=("Corrected resampled t-test per pair on the (repeat, fold) cells both "
-                        "have; difference = a − b in the metric as people read it; tied when "
-                        f"p > α = {v.alpha:g}."))
+                 intro=("Verdict from the Bayesian correlated t-test over the (repeat, fold) "
+                        "cells both strategies have (one split: the Bayesian t posterior over "
+                        "the test rows): better when P(a better) or P(b better) reaches "
+                        f"{v.certainty:.0%}, practically equivalent when P(equivalent) does, "
+                        "otherwise undecided. Beside it the frequentist test (corrected "
+                        "resampled t-test; with one split McNemar's exact test or a paired "
+                        "t-test on per-row squared errors) and its "
+                        f"{_level(v)} interval; difference = a − b in the metric as people read "
+                        f"it. Region: {region_text(v)}."))
 
 
 def ranks(v: Verdict, frame: pd.DataFrame) -> Table:
     """The one ranking: average ranks over the complete block of datasets × strategies."""
-    cols = ["strategy", "family", "average_rank", "datasets", "fit_seconds",
-            "predict_ms_per_1000_rows", "failed_cells", "on_fit_front",
-            "wilcoxon_tied_with_best", "nemenyi_tied_with_best"]
+    cols = ["strategy", "family", "place", "average_rank", "datasets", "fit_seconds",
+            "predict_ms_per_1000_rows", "failed_cells", "on_fit_front", "against_leader"]
     if v.ranks is None:
         empty = pd.DataFrame(columns=cols)
         return Table("ranks", "Average rank across datasets", empty, empty)
@@ -170,34 +185,36 @@ def ranks(v: Verdict, frame: pd.DataFrame) -> Table:
     if v.pareto is not None:
         allp = v.pareto[(v.pareto["scope"] == "all datasets") & (v.pareto["cost_kind"] == "fit")]
         front = dict(zip(allp["strategy"], allp["on_front"]))
-    best = v.best
-    w_tied, n_tied = {best: True}, {best: True}
+    lead = v.leaders[0] if v.leaders else None
+    against = {lead: "leader"}
     if v.across is not None:
-        for _, r in v.across[v.across["a"] == best].iterrows():
-            w_tied[r["b"]] = not r["wilcoxon_differs"]
-            n_tied[r["b"]] = not r["nemenyi_differs"]
+        for _, r in v.across.iterrows():
+            if lead in (r["a"], r["b"]):
+                other = r["b"] if r["a"] == lead else r["a"]
+                against[other] = ("worse" if r["better"] == lead else "better"
+                                  if r["better"] else r["verdict"])
+    places = rank_places(v.ranks)
     failed = frame[frame["status"] != OK].groupby("strategy").size()
     data = pd.DataFrame([{
-        "strategy": s, "family": c.loc[s, "family"], "average_rank": float(r),
-        "datasets": len(v.matrix), "fit_seconds": c.loc[s, "fit_seconds"],
+        "strategy": s, "family": c.loc[s, "family"], "place": places[str(s)],
+        "average_rank": float(r), "datasets": len(v.matrix),
+        "fit_seconds": c.loc[s, "fit_seconds"],
         "predict_ms_per_1000_rows": c.loc[s, "predict_ms_per_1000_rows"],
         "failed_cells": int(failed.get(s, 0)), "on_fit_front": front.get(s),
-        "wilcoxon_tied_with_best": w_tied.get(s), "nemenyi_tied_with_best": n_tied.get(s)}
-        for s, r in v.ranks.items()], columns=cols)
+        "against_leader": against.get(s)} for s, r in v.ranks.items()], columns=cols)
     display = data.assign(average_rank=[f"{x:.2f}" for x in data["average_rank"]]).rename(
         columns={"average_rank": "average rank", "fit_seconds": "fit s (geometric mean)",
                  "predict_ms_per_1000_rows": "predict ms / 1,000 rows (geometric mean)",
                  "failed_cells": "failed cells", "on_fit_front": "on the fit-time front",
-                 "wilcoxon_tied_with_best": "tied with best (Wilcoxon–Holm)",
-                 "nemenyi_tied_with_best": "tied with best (Nemenyi)"})
+                 "against_leader": f"against {lead} (signed-rank)"})
     if not v.tested:
-        display = display.drop(columns=["tied with best (Wilcoxon–Holm)",
-                                        "tied with best (Nemenyi)"])
+        display = display.drop(columns=[f"against {lead} (signed-rank)", "on the fit-time front"])
     n, k = v.matrix.shape
     intro = (f"{k} strategies ranked on each of {n} datasets by the dataset's first metric "
-             "(1 = best; equal scores share the mean rank), then averaged. Classification and "
-             "regression datasets pool by rank. Only datasets on which every strategy has a "
-             "score count; what was left out is named below.")
+             "(1 = best; equal scores share the mean rank, equal average ranks share a place, "
+             "shown with =), then averaged. Classification and regression datasets pool by "
+             "rank. Only datasets on which every strategy has a score count; what was left out "
+             "is named below. Times are geometric means over datasets of the per-dataset means.")
     footer = " ".join(s[0].upper() + s[1:] + "." for s in v.left_out)
     return Table("ranks", f"Average rank across datasets (1 = best; {n} datasets)", data,
                  display, intro=intro, footer=footer)
@@ -231,30 +248,59 @@ def scale_text(v: Verdict) -> str:
         metric = v.primary[v.matrix.index[0]]
         return (f"Wilcoxon differences are raw {metric_label(metric)} differences (every "
                 "dataset is judged on this unit-free metric).")
-    return ("Wilcoxon differences are divided by each dataset's fold-to-fold standard deviation "
-            "(pooled over strategies), because the datasets are judged on metrics whose "
-            "differences do not share a unit.")
+    return ("Wilcoxon differences are divided, per pair and dataset, by the standard deviation "
+            "of that pair's own fold-to-fold differences (the region half-width for a single "
+            "split), because the datasets are judged on metrics whose differences do not share "
+            "a unit; no other strategy affects a pair's p-value.")
+
+
+def effect_text(v: Verdict, r) -> str:
+    if pd.isna(r["effect"]):
+        return ""
+    if v.effect_unit == "region":
+        text = interval(r["effect"], r["effect_low"], r["effect_high"], 3)
+        return f"{text} × region"
+    sign = -1 if lower_is_better(v.effect_unit) else 1
+    lo, hi = sorted([sign * r["effect_low"], sign * r["effect_high"]]) \
+        if pd.notna(r["effect_low"]) else (np.nan, np.nan)
+    return interval(sign * r["effect"], lo, hi, 3)
 
 
 def pairs_across(v: Verdict) -> Table:
     a = v.across
+    level = _level(v)
     display = pd.DataFrame({
         "a (ranked ahead)": a["a"], "b": a["b"],
         "average ranks": [f"{x:.2f} vs {y:.2f}" for x, y in zip(a["rank_a"], a["rank_b"])],
-        "datasets a better": [f"{x} of {n}" for x, n in zip(a["a_wins"], a["n_datasets"])],
-        "Wilcoxon p": [p_text(x) for x in a["p"]], "Holm p": [p_text(x) for x in a["p_holm"]],
-        "Wilcoxon–Holm": ["differ" if x else "tied" for x in a["wilcoxon_differs"]],
-        "Nemenyi": ["differ" if x else "tied" for x in a["nemenyi_differs"]],
-        "win / tie / loss": [f"{w} / {t} / {l}" for w, t, l in
-                             zip(a["wins"], a["ties"], a["losses"])]})
-    intro = (f"The verdict across datasets is the Wilcoxon signed-rank test of each pair with "
-             f"Holm's correction over all {len(a)} pairs: unlike a mean-rank test, its outcome "
-             "for two strategies does not depend on which others are in the comparison. The "
-             f"Nemenyi column compares average ranks with the critical difference ({v.cd:.2f}). "
-             "Win / tie / loss counts datasets where a is significantly better, tied or "
-             f"significantly worse by the per-dataset corrected t-test. {scale_text(v)}")
-    return Table("pairs_across", "Pairs across datasets", a, display, intro=intro,
-                 row_classes=["best" if x else "" for x in a["wilcoxon_differs"]])
+        "P(a better)": [_prob(x) for x in a["p_a"]],
+        "P(equivalent)": [_prob(x) for x in a["p_eq"]],
+        "P(b better)": [_prob(x) for x in a["p_b"]],
+        "verdict": [verdict_text(r) for _, r in a.iterrows()],
+        "datasets that would decide it": [f"about {x}" if 0 < x <= 200 else
+                                          "more than 200" if x > 200 else ""
+                                          for x in a["datasets_needed"]],
+        f"median difference a − b [{level}]": [effect_text(v, r) for _, r in a.iterrows()],
+        "Wilcoxon–Holm p": [p_text(x) for x in a["p_holm"]],
+        "Nemenyi": ["differ" if x else "not told apart" for x in a["nemenyi_differs"]],
+        "per dataset: better / equivalent / undecided / worse": [
+            f"{w} / {e} / {u} / {l}" for w, e, u, l in
+            zip(a["wins"], a["equivalent"], a["undecided"], a["losses"])]})
+    unit = ("in units of each dataset's region half-width (the region is ±1)"
+            if v.effect_unit == "region" else f"in {metric_label(v.effect_unit)}")
+    intro = (f"The verdict across datasets is the Bayesian signed-rank test on the per-dataset "
+             "differences, each divided by its dataset's region half-width: better when "
+             f"P(a better) or P(b better) reaches {v.certainty:.0%}, practically equivalent when "
+             "P(equivalent) does, otherwise undecided, with a rough count of datasets that "
+             "would decide it if new datasets behaved like these. The median difference is the "
+             f"Hodges–Lehmann estimate {unit}, with its exact {level} interval (none with fewer "
+             "than six datasets). Beside it: the Wilcoxon signed-rank test with Holm's "
+             f"correction over all {len(a)} pairs (α = {v.alpha:g}) and the Nemenyi critical "
+             f"difference ({v.cd:.2f} ranks). The per-dataset counts are a descriptive tally of "
+             f"the per-dataset verdicts, uncorrected for the many comparisons. {scale_text(v)}")
+    return Table("pairs_across", "Pairs across datasets", a.drop(columns=[], errors="ignore"),
+                 display, intro=intro,
+                 row_classes=["best" if b else "tied" if x == EQUIVALENT else ""
+                              for b, x in zip(a["better"], a["verdict"])])
 
 
 def pareto(v: Verdict) -> Table:
@@ -284,7 +330,9 @@ def pareto(v: Verdict) -> Table:
     return Table("pareto", "Accuracy against cost: Pareto fronts", v.pareto, pd.DataFrame(rows),
                  group="scope" if rows else None, group_titles=titles,
                  intro=("A strategy is dominated when another has a score at least as good and "
-                        "a cost at least as low, one of them strictly. Scores and costs are "
+                        "a cost at least as low, one of them strictly; costs that differ by "
+                        "less than twice the standard error of their difference (the timing "
+                        "noise over folds) count as equal. Scores and costs are "
                         "means; timings are taken with cells running side by side, one thread "
                         "each. Over all datasets the score is the average rank (lower is "
                         "better) and the cost the geometric mean over datasets."))
@@ -421,4 +469,4 @@ def speedup_summary(points: pd.DataFrame, fits: pd.DataFrame) -> pd.DataFrame:
 
 __all__ = ["COST_LABELS", "scores", "costs", "failures", "intervals", "pairs", "ranks", "tests",
            "pairs_across", "pareto", "speedup_points", "serial_fraction", "speedup_summary",
-           "scale_text", "standing_text", "pair_outcome"]
+           "scale_text", "verdict_text", "effect_text"]

@@ -1,11 +1,12 @@
-"""The verdict in plain words: the sentences the terminal prints and the report opens with,
+"""The verdict in plain words: the bottom line the terminal prints and the report opens with
+(better, practically equivalent, undecided — across how many datasets), the details after it,
 and the caveats about what the tests can tell."""
 
 from __future__ import annotations
 
 import numpy as np
 
-from harness.analysis.verdict import Verdict
+from harness.analysis.verdict import EQUIVALENT, UNDECIDED, Verdict
 from harness.report.render import as_read, fmt_p, metric_label, number
 
 
@@ -25,9 +26,9 @@ def notes(v: Verdict) -> list[str]:
     n, k = v.matrix.shape
     if not v.tested:
         if v.ranks is not None:
-            out.append(f"The across-dataset tests need at least two datasets and two strategies "
-                       f"scored on all of them; here there are {n} and {k}. Read the "
-                       "per-dataset tables.")
+            out.append(f"The across-dataset comparison needs at least two datasets and two "
+                       f"strategies scored on all of them; here there are {n} and {k}, so it "
+                       "is left out and the verdicts above are per dataset.")
         return out
     if v.powerless:
         m = len(v.across)
@@ -38,13 +39,12 @@ def notes(v: Verdict) -> list[str]:
             "so the Wilcoxon–Holm verdict cannot tell any pair apart here. More datasets are "
             "needed for a verdict across datasets.")
     if n < FEW_DATASETS:
-        out.append(f"Only {n} datasets: the across-dataset tests have little power and their "
-                   "verdicts mean little; read the per-dataset tables.")
+        out.append(f"Only {n} datasets: the across-dataset tests have little power; "
+                   "'undecided' across datasets is the expected outcome until there are more.")
     if v.friedman.f_p > v.alpha:
-        out.append(f"The Friedman test does not reject that all {k} strategies rank alike "
-                   f"(Iman–Davenport F = {v.friedman.f:.2f}, {fmt_p(v.friedman.f_p)}): the "
-                   "differences in average rank may be chance, and the Nemenyi post-hoc "
-                   "comparison should not be read as a finding.")
+        out.append("The Friedman test does not reject equal ranks: the differences in average "
+                   "rank may be chance, and the Nemenyi comparison should not be read as a "
+                   "finding.")
     return out
 
 
@@ -52,99 +52,156 @@ def left_out(v: Verdict) -> list[str]:
     return [s[0].upper() + s[1:] + "." for s in v.left_out]
 
 
-def _count(n, word: str, plural: str = "s") -> str:
-    return f"{int(n)} {word}{'' if int(n) == 1 else plural}"
-
-
 def _seconds(s: float) -> str:
     return f"{s:.3g} s" if np.isfinite(s) else "? s"
 
 
-def summary(v: Verdict) -> list[str]:
-    """The verdict in plain words, one sentence per item, figures included."""
-    out: list[str] = []
+def _pct(p: float) -> str:
+    return f"{p:.0%}" if p < 0.995 else "≥99%"
+
+
+def region_text(v: Verdict) -> str:
+    """The region per metric judged: ``accuracy ±0.01, RMSE ±1% of the best``."""
+    return ", ".join(f"{metric_label(m)} ±{g.width * 100:g}% of the best" if g.relative
+                     else f"{metric_label(m)} ±{g.width:g}"
+                     for m, g in v.judged_margins().items())
+
+
+def region(v: Verdict) -> str:
+    """``region of practical equivalence accuracy ±0.01; certainty 95%``."""
+    return f"region of practical equivalence {region_text(v)}; certainty {v.certainty:.0%}"
+
+
+def rank_places(ranks) -> dict[str, str]:
+    """Strategy → its place, equal average ranks sharing one (``1``, ``=2``, ``=2``, ``4``)."""
+    out, values = {}, list(ranks.items())
+    for i, (name, r) in enumerate(values):
+        first = next(k for k, (_, x) in enumerate(values) if np.isclose(x, r))
+        shared = sum(np.isclose(x, r) for _, x in values) > 1
+        out[str(name)] = f"{'=' if shared else ''}{first + 1}"
+    return out
+
+
+def _datasets_hint(rows) -> str:
+    need = [int(r["datasets_needed"]) for _, r in rows.iterrows()]
+    if not need:
+        return ""
+    known = [x for x in need if x <= 200]
+    if not known:
+        return " (more datasets would help, but more than 200 would be needed at these differences)"
+    return (f" (more datasets would help: about {min(known)}"
+            + (f" to {max(known)}" if max(known) != min(known) else "") + ", if new ones "
+            "behave like these)")
+
+
+def bottom_line(v: Verdict) -> list[str]:
+    """One or two plain sentences: what is better, what is practically equivalent, what is
+    undecided, across how many datasets."""
     if v.ranks is None or v.ranks.empty:
         return ["No strategy has a successful cell, so there is nothing to compare."]
-    n, k = v.matrix.shape
-    best = v.best
     if not v.tested:
-        for ds, part in v.intervals.dropna(subset=["mean"]).groupby("dataset", sort=False):
-            top = part[part["best"]].iloc[0]
-            others = [s for s in part.loc[part["tied_with_best"] & ~part["best"], "strategy"]]
-            out.append(f"On {ds} ({metric_label(top['metric'])}), {top['strategy']} has the "
-                       f"best mean score ({number(as_read(top['metric'], top['mean']))})" + (f"; tied with it (corrected t-test, α = "
-                                                 f"{v.alpha:g}): {names(others)}." if others
-                                                 else "; no other strategy is tied with it."))
-        return out + notes(v) + left_out(v)
-    r = v.ranks
-    out.append(f"{best} has the best average rank ({r[best]:.2f} over {n} datasets, each "
-               f"ranked on its first metric; 1 = best of {k}).")
-    f = v.friedman
-    rejects, chi2_rejects = f.f_p <= v.alpha, f.chi2_p <= v.alpha
-    out.append(f"The Friedman test {'rejects' if rejects else 'does not reject'} that "
-               f"all {k} strategies rank alike (Iman–Davenport F = {f.f:.2f}, {fmt_p(f.f_p)}"
-               + (f"; its chi-square form {'does' if chi2_rejects else 'does not'} "
-                  f"(χ² = {f.chi2:.2f}, {fmt_p(f.chi2_p)})" if rejects != chi2_rejects else "")
-               + ").")
-    vs_best = v.across[v.across["a"] == best]
-    tied = [(row["b"], row["p_holm"]) for _, row in vs_best.iterrows()
-            if not row["wilcoxon_differs"]]
-    beaten = [(row["b"], row["p_holm"]) for _, row in vs_best.iterrows()
-              if row["wilcoxon_differs"]]
+        return [_dataset_line(v, ds) for ds in dict.fromkeys(v.intervals["dataset"])
+                if v.intervals[v.intervals["dataset"] == ds]["mean"].notna().any()]
+    n, k = v.matrix.shape
+    leaders = v.leaders
+    lead = leaders[0]
+    if len(leaders) > 1:
+        head = (f"Across {n} datasets, {names(leaders)} share the best average rank "
+                f"({v.ranks[lead]:.2f} of {k} strategies).")
+    else:
+        head = f"Across {n} datasets, {lead} ranks first of {k} strategies ({v.ranks[lead]:.2f})."
+    mine = v.across[(v.across["a"] == lead) | (v.across["b"] == lead)]
+    other = lambda r: r["b"] if r["a"] == lead else r["a"]  # noqa: E731
+    beats = [other(r) for _, r in mine.iterrows() if r["better"] == lead]
+    beaten = [other(r) for _, r in mine.iterrows() if r["better"] not in ("", lead)]
+    same = [other(r) for _, r in mine.iterrows() if r["verdict"] == EQUIVALENT]
+    open_ = mine[mine["verdict"] == UNDECIDED]
     parts = []
-    if tied:
-        first, rest = tied[0], tied[1:]
-        parts.append(f"statistically tied with {first[0]} (Wilcoxon–Holm {fmt_p(first[1])})"
-                     + "".join(f", {s} ({fmt_p(p)})" for s, p in rest))
+    if beats:
+        parts.append(f"better than {names(beats)}")
+    if same:
+        parts.append(f"practically equivalent to {names(same)}")
     if beaten:
-        parts.append("better than " + ", ".join(f"{s} ({fmt_p(p)})" for s, p in beaten))
-    out.append("By the Wilcoxon signed-rank test with Holm's correction it is "
-               + "; and ".join(parts) + ".")
-    if len(vs_best):
-        runner = vs_best.iloc[0]
-        out.append(f"Against the runner-up {runner['b']}, dataset by dataset (corrected t-test, "
-                   f"α = {v.alpha:g}): {_count(runner['wins'], 'win')}, "
-                   f"{_count(runner['ties'], 'tie')}, {_count(runner['losses'], 'loss', 'es')}.")
-    nem = [row["b"] for _, row in vs_best.iterrows() if row["nemenyi_differs"]]
-    out.append(f"By the Nemenyi critical difference ({v.cd:.2f} ranks at α = {v.alpha:g}) it "
-               + (f"differs from {names(nem)}." if nem else "differs from no other strategy."))
-    cost = v.costs.set_index("strategy")["fit_seconds"]
-    if v.powerless:  # "tied" would say nothing: use the per-dataset tests instead
-        never_worse = [row["b"] for _, row in vs_best.iterrows() if row["wins"] == 0]
-        cheapest = min([best] + never_worse, key=lambda s: (cost.get(s, np.inf), s))
-        if not never_worse:
-            out.append(f"Every other strategy is significantly worse than {best} on at least "
-                       f"one dataset (corrected t-test); {best} takes {_seconds(cost[best])} "
-                       "per fit (geometric mean over datasets).")
-        elif cheapest == best:
-            out.append(f"{names(never_worse)} {'is' if len(never_worse) == 1 else 'are'} never "
-                       f"significantly worse than {best} on a dataset (corrected t-test), but "
-                       f"not cheaper to fit; {best} takes {_seconds(cost[best])} per fit "
-                       "(geometric mean over datasets).")
-        else:
-            out.append(f"The cheapest strategy never significantly worse than {best} on a "
-                       f"dataset (corrected t-test) is {cheapest} at {_seconds(cost[cheapest])} "
-                       f"per fit against {_seconds(cost[best])} (geometric means over "
-                       "datasets).")
-        group = []
-    else:
-        group = [best] + [s for s, _ in tied]
-        cheapest = min(group, key=lambda s: (cost.get(s, np.inf), s))
-    if not group:
-        pass
-    elif cheapest == best:
-        out.append(f"No strategy tied with it is cheaper to fit: {best} takes "
-                   f"{_seconds(cost[best])} per fit (geometric mean over datasets).")
-    else:
-        out.append(f"The cheapest strategy tied with the best is {cheapest} at "
-                   f"{_seconds(cost[cheapest])} per fit against {_seconds(cost[best])} for "
-                   f"{best} (geometric means over datasets).")
+        parts.append(f"worse than {names(beaten)}")
+    if len(open_):
+        parts.append(f"undecided against {names([other(r) for _, r in open_.iterrows()])}"
+                     + _datasets_hint(open_))
+    body = (f"{lead} is " + "; ".join(parts) + " (Bayesian signed-rank test, "
+            f"{region(v)}).")
+    return [head, body]
+
+
+def _dataset_line(v: Verdict, ds: str) -> str:
+    part = v.intervals[(v.intervals["dataset"] == ds) & v.intervals["mean"].notna()]
+    part = part.sort_values("mean", ascending=False, kind="stable")
+    metric = part["metric"].iloc[0]
+    best = part[part["best"]]
+    top = best.iloc[0]
+    evidence = ("its test rows (one split)" if top["evidence"] == "test rows"
+                else "repeats × folds")
+    groups = {key: [str(s) for s in part.loc[part["standing"] == key, "strategy"]]
+              for key in ("equivalent to best", "worse than best", "undecided")}
+    lead = names([str(s) for s in best["strategy"]])
+    text = (f"On {ds} ({metric_label(metric)}, judged on {evidence}), {lead} "
+            f"{'have' if len(best) > 1 else 'has'} the best mean "
+            f"({number(as_read(metric, top['mean']))})")
+    bits = []
+    if groups["equivalent to best"]:
+        bits.append(f"practically equivalent to it: {names(groups['equivalent to best'])}")
+    if groups["worse than best"]:
+        bits.append(f"worse: {names(groups['worse than best'])}")
+    if groups["undecided"]:
+        pairs = v.pairs[(v.pairs["dataset"] == ds) & ((v.pairs["a"] == top["strategy"])
+                                                     | (v.pairs["b"] == top["strategy"]))]
+        advice = [a for a in pairs.loc[pairs["verdict"] == UNDECIDED, "advice"] if a]
+        bits.append(f"undecided: {names(groups['undecided'])}"
+                    + (f" — {advice[0]}" if advice else ""))
+    return text + ("; " + "; ".join(bits) if bits else "") + f" ({region(v)})."
+
+
+def details(v: Verdict) -> list[str]:
+    """The supporting figures after the bottom line: the frequentist tests, cost, caveats."""
+    if v.ranks is None or v.ranks.empty:
+        return []
+    out: list[str] = []
+    if v.tested:
+        n, k = v.matrix.shape
+        best = v.leaders[0]
+        f = v.friedman
+        rejects = f.f_p <= v.alpha
+        out.append(f"Friedman test: {'rejects' if rejects else 'does not reject'} that all {k} "
+                   f"strategies rank alike (Iman–Davenport F = {f.f:.2f}, {fmt_p(f.f_p)}).")
+        vs_best = v.across[(v.across["a"] == best)]
+        told = [r["b"] for _, r in vs_best.iterrows() if r["wilcoxon_differs"]]
+        out.append(f"Wilcoxon signed-rank with Holm's correction (α = {v.alpha:g}) tells {best} "
+                   + (f"apart from {names(told)}" if told else "apart from no other strategy")
+                   + f"; the Nemenyi critical difference is {v.cd:.2f} ranks.")
+        c = v.costs.set_index("strategy")
+        cost, noise = c["fit_seconds"], c["fit_seconds_se"].fillna(0.0)
+        near = [r["b"] for _, r in vs_best.iterrows() if r["verdict"] == EQUIVALENT]
+        cheaper = [s for s in near if cost[best] - cost[s] > 2 * np.hypot(noise[best], noise[s])]
+        if cheaper:
+            cheapest = min(cheaper, key=lambda s: (cost[s], s))
+            out.append(f"Practically equivalent to {best} and cheaper to fit beyond the timing "
+                       f"noise: {names(cheaper)}; the cheapest, {cheapest}, takes "
+                       f"{_seconds(cost[cheapest])} per fit against {_seconds(cost[best])} "
+                       "(geometric means over datasets).")
+        elif near:
+            out.append(f"None of what is practically equivalent to {best} is cheaper to fit "
+                       "beyond the timing noise.")
     if v.pareto is not None:
         allp = v.pareto[(v.pareto["scope"] == "all datasets") & (v.pareto["cost_kind"] == "fit")]
         if len(allp):
             on = allp.loc[allp["on_front"], "strategy"].tolist()
             dom = [f"{r['strategy']} (by {r['dominated_by']})" for _, r in
                    allp[~allp["on_front"]].iterrows()]
-            out.append(f"On the average-rank against fit-time front: {names(on)}"
-                       + (f"; dominated: {'; '.join(dom)}." if dom else "; none is dominated."))
+            out.append(f"Average rank against fit time (geometric mean over datasets; costs "
+                       f"within twice their timing noise count as equal): on the front "
+                       f"{names(on)}" + (f"; dominated: {'; '.join(dom)}." if dom
+                                         else "; none is dominated."))
     return out + notes(v) + left_out(v)
+
+
+def summary(v: Verdict) -> list[str]:
+    """The bottom line, then the details: every sentence of the short answer."""
+    return bottom_line(v) + details(v)

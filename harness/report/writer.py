@@ -18,11 +18,12 @@ from harness.analysis.results import ok_cells, strategy_means
 from harness.analysis.speedup import summarize
 from harness.analysis.verdict import Verdict, verdict
 from harness.files import write_bytes, write_text
-from harness.report import plots, speedup_plots, tables, words
+from harness.report import plots, speedup_plots, tables, verdict_plots, words
 from harness.report.cd_diagram import cd_figure
 from harness.report.page import REPORT_NAME, PageContent, render
 from harness.report.render import Table, to_markdown
 from harness.store import Store
+from harness.suite import Equivalence
 
 SUMMARY_NAME = "summary.md"
 OUTPUT_FILES = ("provenance.json", SUMMARY_NAME, REPORT_NAME)
@@ -116,15 +117,19 @@ def _verdict_figures(v: Verdict) -> dict[str, Figure]:
             "wilcoxon_holm_groups": cd_figure(v.ranks, None, v.wilcoxon_groups,
                                               f"Not told apart by Wilcoxon–Holm, "
                                               f"α = {v.alpha:g}, {n} datasets")}
-    fig = plots.rank_vs_fit_time(v.ranks, v.costs, n)
-    if fig is not None:
-        figs["rank_vs_fit_time"] = fig
+    for name, fig in (("rank_vs_fit_time", plots.rank_vs_fit_time(v.ranks, v.costs, n)),
+                      ("probability_bars", verdict_plots.probability_bars(v)),
+                      ("posterior_triangles", verdict_plots.triangles(v))):
+        if fig is not None:
+            figs[name] = fig
     return figs
 
 
-def write_report(folder: str | Path) -> Outputs:
+def write_report(folder: str | Path, recommendation: list[str] | None = None,
+                 recommendation_sections: list[tuple[str, list[str]]] | None = None) -> Outputs:
     """Tables (CSV + Markdown), plots, provenance and report.html for the folder's latest
-    plan, from its store alone."""
+    plan, from its store alone; `woodlot choose` adds its recommendation (sentences and
+    titled sections such as warnings) at the top of the page."""
     folder = Path(folder)
     out = Outputs(folder)
     with Store(folder, create=False) as store:
@@ -139,7 +144,8 @@ def write_report(folder: str | Path) -> Outputs:
     figures: dict[str, Figure] = {}
     found: list[Table] = []
     if not frame.empty:
-        v = verdict(frame, provenance.get("metrics"))
+        v = verdict(frame, provenance.get("metrics"),
+                    Equivalence.from_settings(provenance.get("equivalence")))
         out.verdict = v
         found += [tables.scores(frame), tables.costs(frame)]
         fails = tables.failures(frame)
@@ -152,7 +158,8 @@ def write_report(folder: str | Path) -> Outputs:
                 found += [tables.tests(v), tables.pairs_across(v)]
         figures.update(_verdict_figures(v))
         out.files.append(write_text(folder / SUMMARY_NAME, "# The short answer\n\n" + "".join(
-            f"- {s}\n" for s in words.summary(v))))
+            f"{s}\n\n" for s in words.bottom_line(v)) + "## Details\n\n" + "".join(
+            f"- {s}\n" for s in words.details(v))))
         for name, fig in (("score_vs_fit_time", plots.score_vs_fit_time(
                               strategy_means(frame, v.primary))),
                           ("ensemble_size", plots.size_curves(ok_cells(frame), v.primary))):
@@ -188,6 +195,8 @@ def write_report(folder: str | Path) -> Outputs:
         datasets=_dataset_table(datasets, frame, out.verdict),
         failures=out.tables["failures"].data if "failures" in out.tables else pd.DataFrame(),
         provenance=_provenance_rows(run, len(frame), folder),
-        suite_text=(run or {}).get("suite_text") or "", has_speedup=not points_frame.empty)
+        suite_text=(run or {}).get("suite_text") or "", has_speedup=not points_frame.empty,
+        recommendation=recommendation or [],
+        recommendation_sections=recommendation_sections or [])
     out.files.append(write_text(folder / REPORT_NAME, render(content)))
     return out
