@@ -110,7 +110,8 @@ def test_report_is_self_contained(swept):
         assert banned not in page.tags, banned
     assert "@import" not in text and "url(" not in text.lower()
     imgs = [u for u in page.urls if u[0] == "img"]
-    assert len(imgs) >= 7  # score/time, rank/time, two diagrams, ensemble size, two speedup
+    assert len(imgs) >= 9  # score/time, rank/time, two diagrams, ensemble size, two speedup,
+    # probability bars, posterior triangles
     for tag, attr, value in page.urls:
         assert not re.match(r"\s*(https?:|//|ftp:|file:)", value, re.I), (tag, attr, value)
         if tag == "img":
@@ -125,22 +126,28 @@ def test_report_is_self_contained(swept):
     assert "Content-Security-Policy" in text and "default-src 'none'" in text
 
 
+# a run (not `woodlot choose`) has no recommendation section
+RUN_SECTIONS = [(sid, title) for sid, title in SECTIONS if sid != "recommendation"]
+
+
 def test_report_has_every_section(swept):
     page = Page((swept / REPORT_NAME).read_text(encoding="utf-8"))
-    assert list(page.sections) == [sid for sid, _ in SECTIONS]
-    for sid, title in SECTIONS:
+    assert list(page.sections) == [sid for sid, _ in RUN_SECTIONS]
+    for sid, title in RUN_SECTIONS:
         assert squash(page.sections[sid]["title"]) == title
         assert len(squash(page.sections[sid]["text"])) > len(title) + 20, sid
     caution = squash(page.sections["caution"]["text"])
     assert caution.endswith(squash(CAUTION.replace("**", "")))
     verdict = squash(page.sections["verdict"]["text"])
-    assert "has the best average rank" in verdict and "over 2 datasets" in verdict
+    assert "Across 2 datasets" in verdict and "ranks first" in verdict or "share the best" \
+        in verdict
     # two datasets: the report says the tests cannot separate anything
     assert "With 2 datasets the smallest two-sided Wilcoxon p-value possible is 0.5" in verdict
     speed = squash(page.sections["speedup"]["text"])
     assert "Speedup S(p) = T(1) / T(p)" in speed  # tables/speedup.md, embedded
     datasets = squash(page.sections["datasets"]["text"])
-    assert "wine" in datasets and "friedman" in datasets and "tied with best" in datasets
+    assert "wine" in datasets and "friedman" in datasets and "P(within region of best)" \
+        in datasets
     assert "dominated by" in squash(page.sections["cost"]["text"])
 
 
@@ -148,14 +155,14 @@ def test_no_sweep_no_speedup_section_and_report_rewritten_from_store(plain):
     report = plain / REPORT_NAME
     first = Page(report.read_text(encoding="utf-8"))
     assert "speedup" not in first.sections
-    assert list(first.sections) == [sid for sid, _ in SECTIONS if sid != "speedup"]
+    assert list(first.sections) == [sid for sid, _ in RUN_SECTIONS if sid != "speedup"]
     report.unlink()
     shutil.rmtree(plain / "plots")
     assert main(["report", str(plain)]) == 0
     again = Page(report.read_text(encoding="utf-8"))
     assert list(again.sections) == list(first.sections)
     assert again.sections["datasets"]["text"] == first.sections["datasets"]["text"]
-    assert len([u for u in again.urls if u[0] == "img"]) == 5
+    assert len([u for u in again.urls if u[0] == "img"]) == 7
 
 
 def test_store_without_accuracy_cells_still_gets_a_report(tmp_path):
@@ -209,8 +216,8 @@ def test_report_in_headless_chromium(swept, tmp_path):
     assert run.returncode == 0, run.stderr[-2000:]
     assert console_messages(run.stderr) == []
     dom = Page(run.stdout)
-    assert list(dom.sections) == [sid for sid, _ in SECTIONS]
-    for sid, title in SECTIONS:
+    assert list(dom.sections) == [sid for sid, _ in RUN_SECTIONS]
+    for sid, title in RUN_SECTIONS:
         assert squash(dom.sections[sid]["title"]) == title
     assert len([u for u in dom.urls if u[0] == "img"]) >= 7
     shot = tmp_path / "report.png"

@@ -10,9 +10,9 @@ import pandas as pd
 import pytest
 from scipy import stats
 
-from harness.analysis.stats import (average_ranks, corrected_interval, corrected_ttest, friedman, holm,
-                           nemenyi_cd, nemenyi_critical_value, nemenyi_groups, pareto_front,
-                           per_dataset_summary, wilcoxon_holm, win_tie_loss)
+from harness.analysis.stats import (average_ranks, corrected_t, friedman, holm, mcnemar_exact,
+                                   nemenyi_cd, nemenyi_critical_value, nemenyi_groups,
+                                   pareto_front, tally, wilcoxon_holm, wilcoxon_pairs)
 
 # Demšar (2006), "Statistical comparisons of classifiers over multiple data sets", JMLR 7,
 # Table 6: AUC of C4.5, C4.5+m, C4.5+cf, C4.5+m+cf on fourteen data sets.
@@ -58,121 +58,56 @@ HAND_A = [0.81, 0.82, 0.83, 0.81, 0.82, 0.83]
 HAND_B = [0.80] * 6
 
 
+def _moments(a, b):
+    d = np.asarray(a) - np.asarray(b)
+    return d.mean(), d.var(ddof=1), len(d)
+
+
 def test_corrected_t_by_hand():
-    res = corrected_ttest(HAND_A, HAND_B, n_train=200, n_test=100)
-    assert res.mean_diff == pytest.approx(0.02)
-    assert res.t == pytest.approx(math.sqrt(7.5), rel=1e-9)
-    assert res.df == 5 and res.n == 6
+    mean, var, n = _moments(HAND_A, HAND_B)
+    t, p, low, high = corrected_t(mean, var, n, ratio=100 / 200)
+    assert mean == pytest.approx(0.02)
+    assert t == pytest.approx(math.sqrt(7.5), rel=1e-9)
     # Student t table, df = 5 (recalled from memory): t_.975 = 2.571, t_.99 = 3.365,
     # so 2.571 < 2.739 < 3.365 puts the two-sided p between 0.02 and 0.05.
-    assert 0.02 < res.p < 0.05
-    assert res.p == pytest.approx(2 * stats.t.sf(math.sqrt(7.5), 5), rel=1e-9)
+    assert 0.02 < p < 0.05
     # the interval is mean ± t_.975,5 · sqrt(5.333e-5); t_.975,5 = 2.5706 (table, from memory)
-    low, high = res.interval
     assert low == pytest.approx(0.02 - 2.5706 * math.sqrt(8e-5 * 2 / 3), abs=1e-5)
     assert high == pytest.approx(0.02 + 2.5706 * math.sqrt(8e-5 * 2 / 3), abs=1e-5)
     assert low > 0  # consistent with p < 0.05
 
 
-def test_corrected_interval_by_hand():
-    # scores HAND_A: mean 0.82, var 8e-5 (as above), same 2/3 factor
-    mean, low, high = corrected_interval(HAND_A, n_train=200, n_test=100, level=0.95)
-    half = 2.5706 * math.sqrt(8e-5 * 2 / 3)  # t_.975,5 = 2.5706, recalled from memory
-    assert mean == pytest.approx(0.82)
-    assert (low, high) == pytest.approx((0.82 - half, 0.82 + half), abs=1e-5)
-    _, low90, high90 = corrected_interval(HAND_A, n_train=200, n_test=100, level=0.90)
-    assert low < low90 < mean < high90 < high
-
-
-def test_corrected_ttest_reduces_to_paired_t_without_correction():
-    # with n_test / n_train → 0 the statistic is the ordinary paired t (scipy.stats.ttest_rel)
+def test_corrected_t_reduces_to_scipys_paired_t_without_correction():
+    # with n_test / n_train = 0 the statistic is the ordinary paired t (scipy.stats.ttest_rel,
+    # an independent implementation)
     rng = np.random.default_rng(1)
     a, b = rng.normal(0.8, 0.02, 10), rng.normal(0.79, 0.02, 10)
-    ours = corrected_ttest(a, b, n_train=1e15, n_test=1)
+    t, p, _, _ = corrected_t(*_moments(a, b), ratio=0.0)
     ref = stats.ttest_rel(a, b)
-    assert ours.t == pytest.approx(ref.statistic, rel=1e-9)
-    assert ours.p == pytest.approx(ref.pvalue, rel=1e-9)
+    assert t == pytest.approx(ref.statistic, rel=1e-9)
+    assert p == pytest.approx(ref.pvalue, rel=1e-9)
     # the correction only ever widens: smaller |t|, larger p
-    corrected = corrected_ttest(a, b, n_train=90, n_test=10)
-    assert abs(corrected.t) < abs(ours.t) and corrected.p > ours.p
+    t2, p2, _, _ = corrected_t(*_moments(a, b), ratio=10 / 90)
+    assert abs(t2) < abs(t) and p2 > p
 
 
-def test_zero_variance():
-    same = corrected_ttest([0.9] * 6, [0.9] * 6, 80, 20)
-    assert (same.t, same.p, same.mean_diff) == (0.0, 1.0, 0.0)
-    assert same.interval == (0.0, 0.0)
-    shifted = corrected_ttest([0.9, 0.8, 0.7, 0.9], [0.8, 0.7, 0.6, 0.8], 80, 20)
-    # differences are 0.1 up to rounding; treated as constant only if bit-identical,
-    # otherwise the t is huge and p ≈ 0 — either way the conclusion is a difference
-    assert shifted.p < 1e-6 and shifted.t > 0
-    exact = corrected_ttest([3.0, 4.0, 5.0], [1.0, 2.0, 3.0], 80, 20)
-    assert exact.t == math.inf and exact.p == 0.0 and exact.mean_diff == 2.0
-    neg = corrected_ttest([1.0, 2.0, 3.0], [3.0, 4.0, 5.0], 80, 20)
-    assert neg.t == -math.inf and neg.p == 0.0
-    assert corrected_interval([0.5, 0.5, 0.5], 80, 20) == (0.5, 0.5, 0.5)
+def test_corrected_t_zero_variance_and_too_few_cells():
+    t, p, low, high = corrected_t([0.0, 2.0, -2.0], [0.0, 0.0, 0.0], [6, 3, 3], 0.25)
+    assert t.tolist() == [0.0, math.inf, -math.inf] and p.tolist() == [1.0, 0.0, 0.0]
+    assert low.tolist() == high.tolist() == [0.0, 2.0, -2.0]
+    t, p, low, _ = corrected_t(0.1, 0.01, 1, 0.25)
+    assert np.isnan(t) and np.isnan(p) and np.isnan(low)
 
 
-def test_ttest_input_errors():
-    with pytest.raises(ValueError):
-        corrected_ttest([0.1, 0.2], [0.1, 0.2, 0.3], 80, 20)
-    with pytest.raises(ValueError):
-        corrected_ttest([0.1], [0.2], 80, 20)
-    with pytest.raises(ValueError):
-        corrected_interval([0.1, 0.2], 0, 20)
+def test_mcnemar_matches_statsmodels():
+    # reference: statsmodels.stats.contingency_tables.mcnemar(table, exact=True), the binomial
+    # test on the discordant cells (an independent implementation)
+    from statsmodels.stats.contingency_tables import mcnemar
 
-
-def _cells(dataset: str, strategy: str, values: list[float], n_train=200, n_test=100):
-    return [{"dataset": dataset, "strategy": strategy, "repeat": i // 3, "fold": i % 3,
-             "n_train": n_train, "n_test": n_test, "accuracy": v} for i, v in enumerate(values)]
-
-
-def test_per_dataset_summary():
-    rows = (_cells("d1", "boost", HAND_A) + _cells("d1", "tree", HAND_B)
-            + _cells("d1", "forest", [0.81, 0.79, 0.80, 0.82, 0.78, 0.80])
-            + _cells("d2", "boost", [0.7, 0.71, 0.69, 0.7, 0.72, 0.68])
-            + _cells("d2", "tree", [0.6, 0.61, 0.62, 0.6, 0.59, np.nan])  # last cell failed
-            + _cells("d2", "stump", [0.5]))  # a single cell: no test possible
-    frame = pd.DataFrame(rows).sample(frac=1, random_state=0)  # order must not matter
-    out = per_dataset_summary(frame, "accuracy", alpha=0.05)
-
-    s = out.strategies.set_index(["dataset", "strategy"])
-    assert s.loc[("d1", "boost"), "cells"] == 6 and s.loc[("d2", "tree"), "cells"] == 5
-    mean, low, high = corrected_interval(HAND_A, 200, 100, 0.95)
-    got = s.loc[("d1", "boost"), ["mean", "low", "high"]].tolist()
-    assert got == pytest.approx([mean, low, high])
-
-    pairs = out.pairs
-    assert len(pairs[pairs.dataset == "d1"]) == 3 and len(pairs[pairs.dataset == "d2"]) == 3
-
-    def row(ds, x, y):
-        hit = pairs[(pairs.dataset == ds) & (((pairs.a == x) & (pairs.b == y))
-                                             | ((pairs.a == y) & (pairs.b == x)))]
-        assert len(hit) == 1
-        return hit.iloc[0], (1 if hit.iloc[0].a == x else -1)
-
-    r, sign = row("d1", "boost", "tree")
-    assert r.pairs == 6 and sign * r.t == pytest.approx(math.sqrt(7.5)) and not r.tied
-
-    r, sign = row("d2", "boost", "tree")
-    assert r.pairs == 5  # the failed cell is skipped for the pair
-    ref = corrected_ttest([0.7, 0.71, 0.69, 0.7, 0.72], [0.6, 0.61, 0.62, 0.6, 0.59], 200, 100)
-    assert sign * r.t == pytest.approx(ref.t) and r.p == pytest.approx(ref.p) and r.df == 4
-
-    r, _ = row("d1", "forest", "tree")
-    assert r.tied and r.p > 0.05  # forest ≈ tree: mean 0.80 vs 0.80
-
-    r, sign = row("d2", "boost", "stump")
-    assert r.pairs == 1 and np.isnan(r.p) and r.tied and sign * r.mean_diff == pytest.approx(0.2)
-    assert np.isnan(s.loc[("d2", "stump"), "low"]) and s.loc[("d2", "stump"), "mean"] == 0.5
-    assert len(pairs) == 6
-
-
-def test_per_dataset_summary_rejects_duplicates_and_missing_columns():
-    frame = pd.DataFrame(_cells("d", "a", [0.1, 0.2]) * 2)
-    with pytest.raises(ValueError, match="more than once"):
-        per_dataset_summary(frame, "accuracy")
-    with pytest.raises(ValueError, match="lacks"):
-        per_dataset_summary(frame.drop(columns="n_test"), "accuracy")
+    for a_only, b_only in ((10, 2), (3, 3), (0, 7), (40, 25), (0, 0), (1, 0), (120, 95)):
+        ref = mcnemar(np.array([[50, a_only], [b_only, 30]]), exact=True).pvalue
+        assert mcnemar_exact(a_only, b_only) == pytest.approx(ref, rel=1e-12), (a_only, b_only)
+    assert mcnemar_exact(np.array([10, 0]), np.array([2, 0])).shape == (2,)
 
 
 # ---------------------------------------------------------------------------
@@ -313,7 +248,7 @@ def test_nemenyi_groups_cover_exactly_the_close_pairs():
 # Holm and Wilcoxon
 # ---------------------------------------------------------------------------
 
-def test_holm_by_hand():
+def test_holm_by_hand_and_against_statsmodels():
     # m = 4; sorted p: .005·4 = .02, .01·3 = .03, .03·2 = .06, .04·1 = .04 → running max
     # .02, .03, .06, .06. Step-down at α = .05: .005 ≤ .0125 yes, .01 ≤ .0167 yes,
     # .03 ≤ .025 no → stop: reject the first two only.
@@ -322,6 +257,17 @@ def test_holm_by_hand():
     assert reject.tolist() == [True, False, False, True]
     adjusted, _ = holm([0.5, 0.6])
     assert adjusted.tolist() == pytest.approx([1.0, 1.0])  # capped at 1
+    # reference: statsmodels.stats.multitest.multipletests(method="holm"), an independent
+    # implementation of Holm's step-down procedure
+    from statsmodels.stats.multitest import multipletests
+
+    rng = np.random.default_rng(4)
+    for m in (1, 3, 10, 21):
+        p = rng.uniform(0, 0.1, m) ** 2
+        ref_reject, ref_adjusted, _, _ = multipletests(p, alpha=0.05, method="holm")
+        adjusted, reject = holm(p, 0.05)
+        assert adjusted.tolist() == pytest.approx(ref_adjusted.tolist(), rel=1e-12)
+        assert reject.tolist() == ref_reject.tolist()
 
 
 def test_wilcoxon_demsar_c45_vs_m():
@@ -335,19 +281,41 @@ def test_wilcoxon_demsar_c45_vs_m():
     assert (row.a_wins, row.b_wins) == (2, 10)  # two of fourteen are ties
 
 
-def test_wilcoxon_matches_scipy():
-    for m, names in ((DEMSAR_AUC.to_numpy(), DEMSAR_NAMES), (random_matrix(3), list("vwxyz"))):
-        for zm in ("zsplit", "wilcox", "pratt"):
-            out = wilcoxon_holm(m, names, zero_method=zm)
-            assert len(out) == len(names) * (len(names) - 1) // 2
-            for r in out.itertuples():
-                i, j = names.index(r.a), names.index(r.b)
-                ref = stats.wilcoxon(m[:, i], m[:, j], zero_method=zm)
-                assert r.p == pytest.approx(ref.pvalue, rel=1e-10)
-                assert r.statistic == pytest.approx(ref.statistic, rel=1e-10)
-            adjusted, reject = holm(out["p"].to_numpy())
-            assert out["p_holm"].tolist() == pytest.approx(adjusted.tolist())
-            assert out["reject"].tolist() == reject.tolist()
+def _exact_signed_rank_p(d):
+    """Two-sided exact p of the Wilcoxon signed-rank test by enumerating every sign pattern
+    (Wilcoxon's null: each equally likely), average ranks for ties, zeros split: the
+    definition, computed by brute force independently of SciPy."""
+    from itertools import product
+
+    d = np.asarray(d, dtype=float)
+    ranks = stats.rankdata(np.abs(d))
+    zeros = d == 0
+    observed = ranks[d > 0].sum() + ranks[zeros].sum() / 2
+    centre = ranks.sum() / 2
+    sums = [sum(r for r, s in zip(ranks, signs) if s) for signs in
+            product([False, True], repeat=len(d))]
+    return float(np.mean([abs(x - centre) >= abs(observed - centre) - 1e-12 for x in sums]))
+
+
+def test_wilcoxon_p_is_the_exact_null_distribution():
+    # the brute-force enumeration above is the reference; no ties and no zeros, where the
+    # exact null distribution of SciPy's method="exact" is that of the definition
+    rng = np.random.default_rng(3)
+    for n in (4, 5, 6, 8, 10):
+        d = rng.normal(0.3, 1.0, n)
+        out = wilcoxon_pairs(d[None, :], ["a"], ["b"])
+        assert out["p"].iloc[0] == pytest.approx(_exact_signed_rank_p(d), rel=1e-9), n
+    # with five datasets all in one direction, p = 2 / 2^5 = 0.0625: never 0.042 (the normal
+    # approximation older SciPy switched to on ties)
+    tied = np.array([0.1, 0.1, 0.2, 0.2, 0.3])
+    assert wilcoxon_pairs(tied[None, :], ["a"], ["b"])["p"].iloc[0] == pytest.approx(0.0625)
+
+
+def test_wilcoxon_of_a_pair_does_not_depend_on_other_strategies():
+    m = random_matrix(7, n=8, k=3)
+    alone = wilcoxon_holm(m[:, :2], ["a", "b"])
+    with_c = wilcoxon_holm(m, ["a", "b", "c"])
+    assert alone["p"].iloc[0] == with_c.set_index(["a", "b"]).loc[("a", "b"), "p"]
 
 
 def test_wilcoxon_all_zero_and_float_noise():
@@ -369,24 +337,17 @@ def test_wilcoxon_all_zero_and_float_noise():
 # win / tie / loss and Pareto front
 # ---------------------------------------------------------------------------
 
-def test_win_tie_loss_by_hand():
+def test_tally_by_hand():
     pairs = pd.DataFrame({
-        "dataset": ["d1", "d2", "d3", "d4", "d5", "d1", "d2"],
-        "a": ["rf", "rf", "rf", "rf", "rf", "gb", "gb"],
-        "b": ["tree"] * 7,
-        "mean_diff": [0.05, 0.02, -0.03, 0.0, 0.01, -0.01, -0.04],
-        "tied": [False, True, False, False, False, False, False],
-    })
-    out = win_tie_loss(pairs).set_index(["a", "b"])[["wins", "ties", "losses"]]
-    # rf: d1, d5 wins; d2 tied by the test; d4 zero difference → tie; d3 loss
-    assert out.loc[("rf", "tree")].tolist() == [2, 2, 1]
-    assert out.loc[("gb", "tree")].tolist() == [0, 0, 2]
-    # for a cost (lower is better) the signs flip, ties stay
-    flipped = win_tie_loss(pairs, higher_is_better=False).set_index(["a", "b"])
-    assert flipped.loc[("rf", "tree"), ["wins", "ties", "losses"]].tolist() == [1, 2, 2]
-    assert flipped.loc[("gb", "tree"), ["wins", "ties", "losses"]].tolist() == [2, 0, 0]
+        "a": ["rf", "rf", "rf", "rf", "rf", "gb", "gb"], "b": ["tree"] * 7,
+        "better": ["rf", "", "tree", "", "rf", "tree", "tree"],
+        "verdict": ["better", "practically equivalent", "better", "undecided", "better",
+                    "better", "better"]})
+    out = tally(pairs).set_index(["a", "b"])
+    assert out.loc[("rf", "tree")].tolist() == [2, 1, 1, 1]  # wins, equivalent, undecided, losses
+    assert out.loc[("gb", "tree")].tolist() == [0, 0, 0, 2]
     with pytest.raises(ValueError):
-        win_tie_loss(pairs.drop(columns="tied"))
+        tally(pairs.drop(columns="verdict"))
 
 
 def test_pareto_front_by_hand():

@@ -32,7 +32,7 @@ STRATEGY_COLUMNS = ["dataset", "metric", "strategy", "cells", "mean", "low", "hi
                     "p_near_best", "standing", "margin", "evidence"]
 PAIR_COLUMNS = ["dataset", "metric", "a", "b", "pairs", "mean_diff", "sd", "low", "high", "t",
                 "df", "p", "test", "margin", "p_b", "p_eq", "p_a", "verdict", "better",
-                "advice", "evidence"]
+                "advice", "repeats_needed", "evidence"]
 
 
 def word(probs: np.ndarray, certainty: float) -> np.ndarray:
@@ -49,7 +49,9 @@ def judge(ok: pd.DataFrame, metric: str, margin: Margin, certainty: float,
     columns `STRATEGY_COLUMNS` and `PAIR_COLUMNS` (``mean_diff`` is ``a − b``, ``sd`` the standard deviation of the
     per-cell differences (NaN for a single split); ``p_a``,
     ``p_eq``, ``p_b``: probabilities that a is better, that they are practically equivalent,
-    that b is better; ``margin``: the half-width on this dataset in the metric's units)."""
+    that b is better; ``margin``: the half-width on this dataset in the metric's units;
+    ``repeats_needed``: for an undecided pair over folds, the rough number of repeats that would
+    decide it, 0 when more repeats cannot)."""
     need = ["dataset", "strategy", "repeat", "fold", "n_train", "n_test", metric]
     data = ok.loc[ok[metric].notna()]
     dup = data.duplicated(["dataset", "strategy", "repeat", "fold"])
@@ -132,6 +134,7 @@ def _folds(strategies, pairs, x, i, j, ratio, width, certainty, alpha, folds):
     _posterior_into(pairs, probs, certainty)
     undecided = (pairs["verdict_code"] == "").to_numpy()
     reps = bayes.repeats_needed(mean, var, ratio, width, certainty, folds)
+    pairs["repeats_needed"] = np.where(undecided & (n >= 2), reps, np.nan)
     pairs["advice"] = [(_repeats_text(r) if u and k >= 2 else
                         "fewer than two shared cells" if k < 2 else "")
                        for u, r, k in zip(undecided, reps, n)]

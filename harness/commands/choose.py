@@ -25,6 +25,7 @@ import tomlkit
 from sklearn.metrics import get_scorer_names
 
 from harness.analysis.recommendation import Recommendation, plan_budget, recommend
+from harness.analysis.speedup import BUSY_CORES
 from harness.analysis.verdict import verdict
 from harness.commands.run import run_suite
 from harness.commands.speedup import speedup_suite
@@ -236,7 +237,7 @@ def choose(data: str, *, target: str | None = None, budget: str | float = "10m",
         left_out.append("some folds: the run reached the end of the budget before finishing")
     frame = _frame(folder)
     # 4. the recommendation, from the verdict
-    v = verdict(frame, {ds.task: metrics})
+    v = verdict(frame, {ds.task: metrics}, load_suite(suite_path).equivalence)
     rec = recommend(frame, v, ds.name, ds.n_rows,
                     plan={"folds": FOLDS, "repeats": repeats, "strategies": list(kept),
                           "jobs": jobs, "rows": ds.n_rows, "task": ds.task},
@@ -246,10 +247,10 @@ def choose(data: str, *, target: str | None = None, budget: str | float = "10m",
     if (os.cpu_count() or 1) > 1:
         rec.cores = _cores(rec, costs, deadline, suite_path, folder, progress,
                            lambda speedup: write_suite(repeats, strategies, speedup))
-    write_report(folder)
-    rec.used_seconds = time.perf_counter() - t0
     rec.folder = str(folder)
     rec.sentences = words.sentences(rec)
+    write_report(folder, rec.sentences, words.sections(rec))
+    rec.used_seconds = time.perf_counter() - t0
     write_text(folder / "recommendation.json", rec.to_json())
     write_text(folder / "recommendation.md", words.markdown(rec))
     return rec
@@ -266,7 +267,7 @@ def _cores(rec: Recommendation, costs: dict[str, float], deadline: float, suite_
     """One fit at 1 worker and one at all cores of the best and the pick, when the budget
     has room for them (about (1 + 1/cores) × a fold's fit each)."""
     cores = os.cpu_count() or 1
-    names = list(dict.fromkeys([rec.best, rec.pick]))
+    names = list(dict.fromkeys(n for n in (rec.best, rec.pick) if n))
     need = sum(costs.get(n, 0.0) * (1 + 1 / cores) * 1.3 for n in names) + 3.0
     left = deadline - time.perf_counter() - REPORT_RESERVE
     if need > left:
@@ -283,6 +284,8 @@ def _cores(rec: Recommendation, costs: dict[str, float], deadline: float, suite_
         p = points[points.strategy == name]
         t1 = p[p.workers == 1].fit_seconds.median()
         tp = p[p.workers == cores].fit_seconds.median()
+        other = float(p.other_load.max()) if len(p) else 0.0
         if t1 > 0 and tp > 0:
-            out.append({"strategy": name, "t1": float(t1), "tp": float(tp), "cores": cores})
+            out.append({"strategy": name, "t1": float(t1), "tp": float(tp), "cores": cores,
+                        "other_load": other, "busy": bool(other > BUSY_CORES)})
     return out

@@ -1,10 +1,12 @@
 """The recommendation of ``woodlot choose`` in words: the sentences it prints, the advice of
-the ensemble-size curves, the warnings, and ``recommendation.md``."""
+the ensemble-size curves, the warnings, the one-fit "more cores" indication, and
+``recommendation.md`` (report.html shows the same sentences and sections)."""
 
 from __future__ import annotations
 
 from harness.analysis.curves import FALLING, RISING, CurveAdvice
 from harness.analysis.recommendation import Recommendation
+from harness.analysis.verdict import ALPHA
 from harness.report.page import CAUTION
 from harness.report.render import as_read, metric_heading, metric_label, number
 
@@ -48,11 +50,11 @@ def curve_sentence(c: CurveAdvice) -> str:
 def warnings(rec: Recommendation) -> list[str]:
     out = list(rec.warnings)
     if rec.small:
-        out.append(f"the table is small ({rec.plan['rows']} rows): the tests can rarely "
-                   "separate strategies on so little data, so 'tied' here often means 'not "
-                   "enough data to tell'")
-    if rec.all_tied:
-        out.append("every strategy is statistically tied with the best: on this table the "
+        out.append(f"the table is small ({rec.plan['rows']} rows): on so little data the "
+                   "comparison often stays undecided, and a recommendation rests on few test "
+                   "rows")
+    if rec.all_near:
+        out.append("every strategy is practically equivalent to the best: on this table the "
                    "choice can be made on cost")
     return out
 
@@ -62,61 +64,82 @@ def cores_sentences(rec: Recommendation) -> list[str]:
     for c in rec.cores:
         if "skipped" in c:
             out.append(c["skipped"])
-        else:
-            out.append(f"{c['strategy']}: fit {c['t1']:.2f} s on 1 core, {c['tp']:.2f} s on "
-                       f"{c['cores']} cores (speedup {c['t1'] / c['tp']:.2f} of an ideal "
-                       f"{c['cores']})")
+            continue
+        line = (f"{c['strategy']}: one fit took {c['t1']:.2f} s on 1 core and {c['tp']:.2f} s "
+                f"on {c['cores']} cores (ratio {c['t1'] / c['tp']:.2f}; {c['cores']} would be "
+                "ideal)")
+        if c.get("busy"):
+            line += (f" — not a finding: other processes kept {c['other_load']:.1f} cores busy "
+                     "during these fits")
+        out.append(line)
+    if any("skipped" not in c for c in rec.cores):
+        out.append("These are single fits, an indication only; to measure speedup, run "
+                   "'woodlot speedup choose.toml' on a quiet machine (the [speedup] section "
+                   "sets the worker counts and repeats).")
     return out
+
+
+def _pct(p: float) -> str:
+    return f"{p:.0%}" if p < 0.995 else "over 99%"
 
 
 def sentences(rec: Recommendation) -> list[str]:
     by = {r["strategy"]: r for r in rec.strategies}
     b = by[rec.best]
-    test = f"corrected resampled t-test, α = {rec.alpha:g}"
-    out = [f"Best on {metric_label(rec.metric)}: {rec.best} ({_score(rec, b['mean'])}, "
-           f"{1 - rec.alpha:.0%} interval {_interval(rec, b)}, over {b['cells']} folds)."]
-    if rec.tied:
-        out.append(f"Statistically tied with it ({test}): "
-                   + ", ".join(f"{s} ({_score(rec, by[s]['mean'])}, p = "
-                               f"{by[s]['p_vs_best']:.2f})" for s in rec.tied) + ".")
+    region = (f"within ±{number(abs(rec.margin), 3)} {metric_label(rec.metric)} of the best or "
+              "better")
+    out = [f"Highest mean {metric_label(rec.metric)}: {rec.best} ({_score(rec, b['mean'])}, "
+           f"{1 - ALPHA:.0%} interval {_interval(rec, b)}, over {b['cells']} folds)."]
+    if rec.pick:
+        others = [s for s in rec.near if s != rec.pick]
+        out.append(f"Recommendation: {rec.pick} — the cheapest to train of the strategies "
+                   f"whose probability of being {region} reaches {rec.certainty:.0%} "
+                   f"({rec.pick}: {_pct(by[rec.pick]['p_near_best'])}"
+                   + (f"; also qualifying: " + ", ".join(
+                       f"{s} {_pct(by[s]['p_near_best'])}" for s in others) if others else "")
+                   + ").")
+        if rec.pick != rec.best:
+            out.append(f"It trains in {number(by[rec.pick]['fit_seconds'], 3)} s per fit against "
+                       f"{number(b['fit_seconds'], 3)} s for {rec.best}.")
     else:
-        out.append(f"No other strategy is statistically tied with it ({test}).")
-    for verb, name, column, unit in (
-            ("train", rec.cheapest_to_train, "fit_seconds", "s per fit"),
-            ("predict", rec.cheapest_to_predict, "predict_ms_per_1000_rows",
-             "ms per 1,000 rows")):
-        cost = number(by[name][column], 3)
-        if name == rec.best:
-            out.append(f"{rec.best} is also the cheapest of these to {verb} ({cost} {unit}).")
+        out.append(f"Recommendation: undecided — {rec.undecided}.")
+        if rec.more_repeats:
+            out.append(f"About {rec.more_repeats} repeats of {rec.plan['folds']}-fold "
+                       f"cross-validation would likely decide it: roughly "
+                       f"{clock(rec.more_seconds)} of fitting on {rec.plan['jobs']} worker(s) "
+                       "(--budget).")
         else:
-            out.append(f"Cheapest to {verb} among these: {name} ({cost} {unit}, against "
-                       f"{number(b[column], 3)} {unit.split(' per')[0]} for {rec.best}).")
-    if rec.pick != rec.best:
-        out.append(f"Recommendation: {rec.pick} — as accurate as the best within what the "
-                   "tests can tell, and cheaper to train.")
-    else:
-        out.append(f"Recommendation: {rec.best}.")
+            out.append("More repeats would not decide it (the fold-to-fold correction keeps "
+                       "the posterior wide); more rows would, or accept a wider region of "
+                       "practical equivalence.")
+    out.append("The best is not fixed in advance: every strategy's score is sampled jointly "
+               "from the posterior and compared with each sample's best, which corrects for "
+               "picking the best by its sample mean.")
+    if rec.cheapest_to_predict != rec.pick and rec.pick:
+        out.append(f"Cheapest to predict among those qualifying: {rec.cheapest_to_predict} "
+                   f"({number(by[rec.cheapest_to_predict]['predict_ms_per_1000_rows'], 3)} ms "
+                   "per 1,000 rows).")
     return out
 
 
 def sections(rec: Recommendation) -> list[tuple[str, list[str]]]:
     """(title, items) of the parts after the sentences, those with something to say."""
     return [(title, items) for title, items in (
+        ("Warnings", warnings(rec)),
         ("Ensemble size", [curve_sentence(c) for c in rec.curves]),
-        ("More cores", cores_sentences(rec)), ("Left out", rec.left_out),
-        ("Warnings", warnings(rec))) if items]
+        ("More cores", cores_sentences(rec)), ("Left out", rec.left_out)) if items]
 
 
 def markdown(rec: Recommendation) -> str:
     lines = [f"# Which ensemble for '{rec.dataset}'", ""]
     lines += [f"- {s}" for s in rec.sentences] + [""]
     lines += ["## Strategies", "", f"| strategy | family | {metric_heading(rec.metric)} | "
-              f"{1 - rec.alpha:.0%} interval | p vs best | tied with best | fit s | predict ms / "
+              f"{1 - ALPHA:.0%} interval | P(within region of best) | standing | fit s | "
+              "predict ms / "
               "1,000 rows |", "|---|---|---:|---|---:|---|---:|---:|"]
     for r in rec.strategies:
-        pv = "" if r["p_vs_best"] is None else f"{r['p_vs_best']:.3f}"
         lines.append(f"| {r['strategy']} | {r['family']} | {_score(rec, r['mean'])} | "
-                     f"{_interval(rec, r)} | {pv} | {'yes' if r['tied_with_best'] else 'no'} | "
+                     f"{_interval(rec, r)} | {r['p_near_best']:.2f} | {r['standing']} | "
                      f"{number(r['fit_seconds'], 3)} | "
                      f"{number(r['predict_ms_per_1000_rows'], 3)} |")
     for title, items in sections(rec):
