@@ -1,5 +1,6 @@
 """The verdict glue (results frame → per-dataset and across-dataset verdicts, cost fronts) on
-small real runs, and the tables and plots it writes."""
+small real runs, and the tables and plots it writes: better, practically equivalent and
+undecided where the data show each."""
 
 from __future__ import annotations
 
@@ -114,12 +115,12 @@ def test_one_strategy_dominating_is_found_by_every_test(dominance):
     assert sorted(best["dataset"]) == sorted(frame["dataset"].unique())
     assert (best["strategy"] == "forest").all()
     const = v.intervals[v.intervals.strategy == "constant"]
-    assert not const["tied_with_best"].any()
-    assert (v.pairs["better"] == "forest").all() and not v.pairs["tied"].any()
+    assert (const["standing"] == "worse than best").all()
+    assert (v.pairs["better"] == "forest").all() and (v.pairs["verdict"] == "better").all()
+    assert (v.pairs["test"] == "corrected t-test").all()
     # across datasets: k = 2, N = 6, forest ahead on all six.
     # Friedman with k = 2: χ² = 12N/(k(k+1)) Σ(R_j − (k+1)/2)² = 12·6/6 · (0.25 + 0.25) = 6.
     assert v.friedman.chi2 == pytest.approx(6.0)
-    assert v.friedman.chi2_p == pytest.approx(st.chi2.sf(6.0, 1))
     # Iman–Davenport: (N − 1)χ² / (N(k − 1) − χ²) = 5·6 / 0 → infinite F, p = 0
     assert math.isinf(v.friedman.f) and v.friedman.f_p == 0.0
     # all six differences positive: the exact two-sided Wilcoxon p is 2 / 2^6 = 0.03125
@@ -129,18 +130,18 @@ def test_one_strategy_dominating_is_found_by_every_test(dominance):
     assert (row["a"], row["b"]) == ("forest", "constant")
     assert row["p"] == pytest.approx(2 / 2 ** 6) and row["p_holm"] == pytest.approx(2 / 2 ** 6)
     assert row["wilcoxon_differs"] and row["a_wins"] == 6
+    # the Bayesian signed-rank test: far beyond the region on every dataset
+    assert row["verdict"] == "better" and row["better"] == "forest" and row["p_a"] > 0.95
     # Nemenyi, k = 2: q_0.05 = 1.960 (studentized range / √2, table value recalled from
     # memory); CD = 1.960 · sqrt(2·3 / (6·6)) = 0.800 < rank difference 1
     assert v.cd == pytest.approx(1.960 * math.sqrt(6 / 36), abs=2e-3)
     assert row["nemenyi_differs"]
-    assert (row["wins"], row["ties"], row["losses"]) == (6, 0, 0)
+    assert (row["wins"], row["equivalent"], row["undecided"], row["losses"]) == (6, 0, 0, 0)
     assert v.scale == "raw" and not v.powerless
     assert v.nemenyi_groups == [] and v.wilcoxon_groups == []
-    text = " ".join(words.summary(v))
-    assert "forest has the best average rank (1.00 over 6 datasets" in text
-    assert "better than constant (p = 0.031)" in text
-    assert "Friedman test rejects" in text
-    assert "6 wins, 0 ties, 0 losses" in text
+    line = " ".join(words.bottom_line(v))
+    assert "Across 6 datasets, forest ranks first of 2 strategies" in line
+    assert "forest is better than constant" in line
 
 
 def test_intervals_are_the_corrected_interval_of_the_first_metric(dominance):
@@ -155,7 +156,9 @@ def test_intervals_are_the_corrected_interval_of_the_first_metric(dominance):
     row = v.intervals[(v.intervals.dataset == "wine") & (v.intervals.strategy == "forest")].iloc[0]
     assert row["metric"] == "accuracy" and row["cells"] == n == 6
     assert row["mean"] == pytest.approx(x.mean())
-    assert (row["low"], row["high"]) == pytest.approx((x.mean() - half, x.mean() + half))
+    assert (row["low"], row["high"]) == pytest.approx((x.mean() - half,
+                                                       min(1.0, x.mean() + half)))
+    assert row["high"] <= 1.0  # an accuracy interval stays within [0, 1]
     # the same glue with the other metric first judges on that metric
     v2 = verdict(frame, {"classification": ["balanced_accuracy", "accuracy"]})
     row2 = v2.intervals[(v2.intervals.dataset == "wine") & (v2.intervals.strategy == "forest")]
@@ -181,11 +184,17 @@ def test_missing_strategies_are_left_out_and_named(small):
     # classification accuracy and regression RMSE are pooled by rank; Wilcoxon differences
     # are put on each dataset's noise scale
     assert v.primary == {"wine": "accuracy", "friedman": "neg_root_mean_squared_error"}
-    assert v.scale == "noise"
+    assert v.scale == "pair noise"
     # two datasets, three pairs: Wilcoxon–Holm cannot reject, and the verdict says so
     assert v.powerless and "With 2 datasets" in " ".join(words.notes(v))
     assert not v.across["wilcoxon_differs"].any()
     assert any("left out" in s for s in words.summary(v))
+    # Wilcoxon on each pair's own noise: dropping 'gb' changes no other pair's p-value
+    without = verdict(frame[frame.strategy != "gb"])
+    a = v.across.set_index(["a", "b"])
+    b = without.across.set_index(["a", "b"])
+    for key in b.index:
+        assert b.loc[key, "p"] == a.loc[key, "p"]
     # the average ranks equal SciPy's rankdata of the per-dataset means (higher is better)
     kept = frame[frame.strategy.isin(["tree", "forest", "gb"]) & (frame.status == "ok")]
     ref = []
@@ -226,17 +235,20 @@ def test_tied_runs_by_hand():
     assert tied_runs(order, {k: True for k in everything}) == []
 
 
-def _frame(points: dict[str, tuple[float, float, float]], datasets=("d1", "d2")) -> pd.DataFrame:
-    """A results frame with 4 cells per dataset × strategy: (accuracy, fit s, predict s)."""
+def _frame(points: dict[str, tuple[float, float, float]], datasets=("d1", "d2"),
+           jitter: float = 0.0) -> pd.DataFrame:
+    """A results frame with 4 cells per dataset × strategy: (accuracy, fit s, predict s);
+    ``jitter``: relative spread of the fit times over the cells."""
     rows = []
     for ds in datasets:
         for name, (acc, fit, pred) in points.items():
             for i in range(4):
+                fit_i = fit * (1 + jitter * (i - 1.5))
                 rows.append({"key": f"{ds}{name}{i}", "dataset": ds, "strategy": name,
                              "family": "forest", "method": "random-forest",
                              "task": "classification", "repeat": i // 2,
                              "fold": i % 2, "n_train": 100, "n_test": 100, "status": "ok",
-                             "fit_seconds": fit, "predict_seconds": pred,
+                             "fit_seconds": fit_i, "predict_seconds": pred,
                              "accuracy": acc + 0.01 * (i % 2), "curve": None})
     return pd.DataFrame(rows)
 
@@ -263,6 +275,11 @@ def test_pareto_names_the_dominated_and_who_dominates_them():
     assert v.costs.set_index("strategy").loc["good", "fit_seconds"] == pytest.approx(1.0)
     text = " ".join(words.summary(v))
     assert "slow-good (by good)" in text
+    # costs within their timing noise count as equal: nothing dominates on a 3 % difference
+    noisy = _frame({"x": (0.90, 1.00, 0.01), "y": (0.90, 1.03, 0.01)}, jitter=0.1)
+    nv = verdict(noisy)
+    fit = nv.pareto[(nv.pareto.scope == "d1") & (nv.pareto.cost_kind == "fit")]
+    assert fit["on_front"].all()
 
 
 def test_outputs_written_by_the_run(dominance):
@@ -277,9 +294,117 @@ def test_outputs_written_by_the_run(dominance):
     assert "## iris: accuracy (higher is better)" in md and "worse than best" in md
     tests_md = (folder / "tables" / "tests.md").read_text()
     assert "Iman–Davenport F" in tests_md
-    assert "forest has the best average rank" in (folder / "summary.md").read_text()
+    assert "forest ranks first" in (folder / "summary.md").read_text()
     for name in ("critical_difference", "wilcoxon_holm_groups", "rank_vs_fit_time",
-                 "score_vs_fit_time"):
+                 "score_vs_fit_time", "probability_bars", "posterior_triangles"):
         data = (folder / "plots" / f"{name}.png").read_bytes()
         assert data[:8] == b"\x89PNG\r\n\x1a\n" and len(data) > 5000, name
     assert result.outputs.verdict.best == "forest"
+
+
+# ------------------------------------------------------------------ the three verdicts
+
+HOLDOUT_SUITE = """
+[suite]
+name = "one-split"
+
+[protocol]
+splits = "holdout"
+test_fraction = 0.5
+repeats = 1
+seed = 3
+
+[[dataset]]
+name = "hastie"
+from = "generator"
+make = "make_hastie_10_2"
+params = { n_samples = 3000, random_state = 1 }
+
+[[strategy]]
+name = "stump"
+method = "single-tree"
+params = { max_depth = 1 }
+
+[[strategy]]
+name = "boost"
+method = "hist-gradient-boosting"
+params = { max_iter = 60 }
+"""
+
+
+def test_one_split_far_worse_is_said_from_the_test_rows(run_once):
+    # one holdout split, 1,500 test rows: no fold-to-fold variance, so the evidence is the
+    # paired per-row correctness; a stump is far worse than boosting on Hastie's problem
+    result = run_once(HOLDOUT_SUITE, "holdout")
+    frame = load_results(result.folder)
+    assert frame["row_evidence"].notna().all()
+    v = verdict(frame)
+    pair = v.pairs.iloc[0]
+    assert pair["test"] == "McNemar exact" and pair["evidence"] == "test rows"
+    assert pair["pairs"] == 1500 and pair["verdict"] == "better" and pair["better"] == "boost"
+    assert pair["p"] < 1e-6
+    stump = v.intervals.set_index("strategy").loc["stump"]
+    assert stump["standing"] == "worse than best"
+    line = " ".join(words.bottom_line(v))
+    assert "judged on its test rows (one split)" in line and "worse: stump" in line
+    md = (result.folder / "tables" / "pairs.md").read_text()
+    assert "McNemar exact" in md and "boost better" in md and "tied" not in md
+
+
+EQUIVALENT_SUITE = """
+[suite]
+name = "twins"
+
+[protocol]
+folds = 5
+repeats = 2
+seed = 2
+
+[[dataset]]
+name = "cancer"
+from = "sklearn"
+load = "load_breast_cancer"
+
+[[dataset]]
+name = "tiny"
+from = "generator"
+make = "make_classification"
+params = { n_samples = 40, n_features = 5, n_informative = 3, flip_y = 0.3, random_state = 4 }
+
+[[strategy]]
+name = "forest"
+method = "random-forest"
+params = { n_estimators = 30 }
+
+[[strategy]]
+name = "forest-again"
+method = "random-forest"
+params = { n_estimators = 30 }
+
+[[strategy]]
+name = "stump"
+method = "single-tree"
+params = { max_depth = 1 }
+"""
+
+
+def test_identical_is_equivalent_real_difference_better_tiny_undecided(run_once):
+    result = run_once(EQUIVALENT_SUITE, "twins")
+    v = verdict(load_results(result.folder))
+    pairs = v.pairs.set_index(["dataset", "a", "b"])
+    # the same configuration under two names: the same scores, practically equivalent
+    twin = pairs.loc[("cancer", "forest", "forest-again")]
+    assert twin["verdict"] == "practically equivalent" and twin["p_eq"] == 1.0
+    # a forest against a stump on 569 rows: a real difference
+    real = pairs.loc[("cancer", "forest", "stump")]
+    assert real["verdict"] == "better" and real["better"] == "forest"
+    # 40 noisy rows: neither better nor equivalent can be shown, and the advice says what
+    # more data would do
+    tiny = pairs.loc[("tiny", "forest", "stump")]
+    assert tiny["verdict"] == "undecided" and tiny["advice"]
+    assert "repeats" in tiny["advice"] or "rows" in tiny["advice"]
+    text = " ".join(words.bottom_line(v))
+    assert "practically equivalent to forest-again" in text or "forest-again" in text
+    md = (result.folder / "tables" / "pairs.md").read_text()
+    assert "P(equivalent)" in md and "region ±0.01" in md
+    assert "undecided" in md and "practically equivalent" in md

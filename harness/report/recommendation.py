@@ -115,7 +115,8 @@ def sentences(rec: Recommendation) -> list[str]:
     out.append("The best is not fixed in advance: every strategy's score is sampled jointly "
                "from the posterior and compared with each sample's best, which corrects for "
                "picking the best by its sample mean.")
-    if rec.cheapest_to_predict != rec.pick and rec.pick:
+    if rec.pick and by[rec.cheapest_to_predict]["predict_ms_per_1000_rows"] \
+            < by[rec.pick]["predict_ms_per_1000_rows"]:
         out.append(f"Cheapest to predict among those qualifying: {rec.cheapest_to_predict} "
                    f"({number(by[rec.cheapest_to_predict]['predict_ms_per_1000_rows'], 3)} ms "
                    "per 1,000 rows).")
