@@ -371,3 +371,13 @@ def test_default_speedup_covers_every_dataset_and_strategy(write_suite):
     assert {(p.strategy.name, p.workers) for p in points} == \
         {(s, w) for s in ("tree", "forest") for w in (1, 2, 4)}
     assert len({p.key for p in points}) == len(points)
+
+
+def test_few_repeats_label_the_interval_approximate():
+    # coverage by simulation (benchmarks/speedup_interval_coverage.py): about 90 % at 3 repeats
+    from harness.report.tables import speedup_intro
+
+    few = speedup_intro([{"repeats": 3}], 0.15)
+    assert "approximate 95% bootstrap interval" in few and "about 90%" in few
+    enough = speedup_intro([{"repeats": 5}], 0.15)
+    assert "approximate" not in enough

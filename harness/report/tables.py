@@ -7,7 +7,8 @@ import numpy as np
 import pandas as pd
 
 from harness.analysis.results import (metric_columns, ok_cells, predict_ms_per_1000_rows)
-from harness.analysis.speedup import BUSY_CORES, EXTRAPOLATE_TO, LEVEL
+from harness.analysis.speedup import (BUSY_CORES, COVERAGE_BY_REPEATS, EXTRAPOLATE_TO,
+                                      FULL_COVERAGE_REPEATS, LEVEL)
 from harness.analysis.verdict import EQUIVALENT, Verdict
 from harness.report.render import (Table, as_read, interval, lower_is_better,
                                    metric_heading, metric_label, number, p_text)
@@ -378,10 +379,21 @@ def speedup_intro(runs: list[dict], margin: float) -> str:
             parts.append(f"Load average (1, 5, 15 min) before: {before}; after: {after}.")
     notes = list(dict.fromkeys(n for s in runs for n in s.get("notes", [])))
     parts += [f"Note: {n}." for n in notes]
+    repeats = int(last.get("repeats") or FULL_COVERAGE_REPEATS) if last else \
+        FULL_COVERAGE_REPEATS
+    if repeats < FULL_COVERAGE_REPEATS:
+        covers = COVERAGE_BY_REPEATS.get(repeats)
+        bracket = (f"Brackets: approximate {LEVEL:.0%} bootstrap interval over repeats — with "
+                   f"{repeats} repeat{'s' if repeats != 1 else ''} it covers the true speedup "
+                   + (f"only about {covers:.0%} of the time" if covers else "far less often")
+                   + f" (by simulation; {FULL_COVERAGE_REPEATS} or more repeats reach the "
+                   "stated level).")
+    else:
+        bracket = (f"Brackets: {LEVEL:.0%} bootstrap interval over repeats (coverage checked by "
+                   f"simulation at {FULL_COVERAGE_REPEATS} or more repeats).")
     parts.append(
         f"Speedup S(p) = T(1) / T(p) from median fit wall times; efficiency = S(p) / p. "
-        f"Brackets: {LEVEL:.0%} bootstrap interval over repeats (approximate with few "
-        "repeats). CPU s counts every thread and worker process; cores busy = CPU / wall. "
+        f"{bracket} CPU s counts every thread and worker process; cores busy = CPU / wall. "
         f"Noisy: the repeats' fit times differ by more than {margin:.0%} of their median. "
         f"Busy: other processes kept more than {BUSY_CORES:g} cores busy during the fits.")
     return " ".join(parts)
