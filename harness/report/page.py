@@ -67,7 +67,7 @@ th{background:#f2f2f2}td.num{text-align:right;font-variant-numeric:tabular-nums}
 tr.best td{background:#e6f4ea;font-weight:600}tr.tied td{background:#f3f9f4}
 tr.worse td{color:#666}tr.missing td{color:#a33}
 .verdict li{margin:.3rem 0}.bottom{font-size:1.08rem;background:#eef4fb;
- border-left:4px solid #1f4e79;padding:.6rem .9rem}.note{background:#fff8e1;border-left:4px solid #f0b400;
+ border-left:4px solid #1f4e79;padding:.1rem .9rem}.bottom p{margin:.5rem 0}.note{background:#fff8e1;border-left:4px solid #f0b400;
  padding:.5rem .8rem;margin:.6rem 0}
 .caution{background:#fdecea;border-left:4px solid #c62828;padding:.7rem 1rem}
 img{max-width:100%;height:auto;border:1px solid #eee;margin:.4rem 0}
@@ -140,14 +140,14 @@ def _verdict_section(c: PageContent) -> str:
     v = c.verdict
     if v is None:
         return "<p>The store has no accuracy cells, so there is nothing to compare yet.</p>"
-    bottom = "".join(f'<p class="bottom">{esc(s)}</p>' for s in words.bottom_line(v))
+    bottom = "".join(f"<p>{esc(s)}</p>" for s in words.bottom_line(v))
     items = "".join(f"<li>{esc(s)}</li>" for s in words.details(v))
-    return (f'{bottom}<ul class="verdict">{items}</ul><p class="small">Verdicts: better, '
-            "practically equivalent or undecided, from the posterior probability of each at "
-            f"the certainty {v.certainty:.0%} ({esc(words.region(v))}). Ranks and tests count "
-            "each dataset once; the per-dataset verdicts use the Bayesian correlated t-test over "
-            "repeats × folds, or the test rows when a dataset has one split. The frequentist "
-            f"tests use α = {v.alpha:g}.</p>")
+    return (f'<div class="bottom">{bottom}</div><ul class="verdict">{items}</ul>'
+            '<p class="small">Verdicts: better, practically equivalent or undecided, from the '
+            "posterior probability of each. Ranks and tests count each dataset once; the "
+            "per-dataset verdicts use the Bayesian correlated t-test over repeats × folds, or "
+            "the test rows when a dataset has one split. The frequentist tests use "
+            f"α = {v.alpha:g}.</p>")
 
 
 def _pictures_section(c: PageContent) -> str:
@@ -156,7 +156,8 @@ def _pictures_section(c: PageContent) -> str:
     return ("<p>For each pair (first vs second, the first ranked ahead), the bar splits "
             "the probability between the first being better by more than the region of "
             "practical equivalence, the two being practically equivalent, and the second being "
-            "better. A verdict needs one part to reach the dotted line.</p>"
+            "better. A verdict needs one colour to span both dotted lines (at least the "
+            "certainty).</p>"
             + _img(c, "probability_bars", "probabilities of each outcome per pair")
             + "<p>The triangles show the same posterior as a cloud of samples: each dot is one "
               "plausible set of the three probabilities; a cloud packed into one corner is a "

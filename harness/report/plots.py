@@ -88,7 +88,7 @@ def score_vs_fit_time(means: pd.DataFrame) -> Figure | None:
     strategy_means`."""
     if means.empty:
         return None
-    fig, panels, colors = dataset_panels(means, extra=1.3)
+    fig, panels, colors = dataset_panels(means, extra=1.1)
     handles = {}
     for ax, ds, g in panels:
         g = g.set_index("strategy")
@@ -117,7 +117,7 @@ def score_vs_fit_time(means: pd.DataFrame) -> Figure | None:
 
 def _top(fig: Figure, lines: int = 1) -> float:
     """The share of the height below a suptitle of ``lines`` lines."""
-    return 1 - (0.2 + 0.25 * lines) / fig.get_size_inches()[1]
+    return 1 - (0.15 + 0.22 * lines) / fig.get_size_inches()[1]
 
 
 def rank_vs_fit_time(ranks: pd.Series, costs: pd.DataFrame, n_datasets: int) -> Figure | None:

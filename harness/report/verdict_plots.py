@@ -33,7 +33,7 @@ def triangles(v: Verdict, max_cols: int = 4) -> Figure | None:
     pairs = list(v.across[["a", "b"]].itertuples(index=False, name=None))
     cols = min(max_cols, len(pairs))
     rows = math.ceil(len(pairs) / cols)
-    fig = Figure(figsize=(max(3.0 * cols, 6.0), 3.1 * rows + 0.8))
+    fig = Figure(figsize=(max(3.0 * cols, 6.0), 2.7 * rows + 0.5))
     axes = list(fig.subplots(rows, cols, squeeze=False).flat)
     centre = (0.5, _H / 3)
     for ax, (a, b), (_, r) in zip(axes, pairs, v.across.iterrows()):
@@ -41,7 +41,7 @@ def triangles(v: Verdict, max_cols: int = 4) -> Figure | None:
         ax.plot([0, 1, 0.5, 0], [0, 0, _H, 0], color="#444444", linewidth=1)
         for mx, my in ((0.5, 0), (0.25, _H / 2), (0.75, _H / 2)):
             ax.plot([centre[0], mx], [centre[1], my], color="#bbbbbb", linewidth=0.8)
-        ax.scatter(x, y, s=2, alpha=0.15, color="#1f4e79", linewidths=0, rasterized=True)
+        ax.scatter(x, y, s=4, alpha=0.2, color="#1f4e79", linewidths=0, rasterized=True)
         ax.text(0, -0.05, f"{plain(a)}\n{r['p_a']:.2f}", ha="center", va="top", fontsize=7.5,
                 color=A_COLOUR)
         ax.text(1, -0.05, f"{plain(b)}\n{r['p_b']:.2f}", ha="center", va="top", fontsize=7.5,
@@ -49,7 +49,7 @@ def triangles(v: Verdict, max_cols: int = 4) -> Figure | None:
         ax.text(0.5, _H + 0.03, f"equivalent {r['p_eq']:.2f}", ha="center", va="bottom",
                 fontsize=7.5, color="#555555")
         ax.set_xlim(-0.3, 1.3)
-        ax.set_ylim(-0.32, _H + 0.15)
+        ax.set_ylim(-0.3, _H + 0.12)
         ax.set_aspect("equal")
         ax.axis("off")
     for ax in axes[len(pairs):]:
@@ -66,7 +66,7 @@ def probability_bars(v: Verdict) -> Figure | None:
         return None
     a = v.across.iloc[::-1]
     labels = [f"{plain(x)}  vs  {plain(y)}" for x, y in zip(a["a"], a["b"])]
-    fig = Figure(figsize=(9.0, 0.8 + 0.36 * len(a) + 0.9))
+    fig = Figure(figsize=(9.0, 1.3 + 0.34 * len(a)))
     ax = fig.subplots()
     pos = np.arange(len(a))
     left = np.zeros(len(a))
@@ -84,10 +84,11 @@ def probability_bars(v: Verdict) -> Figure | None:
     ax.axvline(1 - v.certainty, color="#222222", linewidth=0.8, linestyle=":")
     ax.set_yticks(pos, labels, fontsize=8)
     ax.set_xlim(0, 1)
-    ax.set_xlabel(f"probability (dotted: the certainty a verdict needs, {v.certainty:.0%})")
+    ax.set_xlabel(f"probability — a verdict needs one colour to span both dotted lines "
+                  f"(certainty {v.certainty:.0%})")
     ax.set_title(f"Which is better across {len(v.matrix)} datasets (Bayesian signed-rank "
                  "test; pairs as first vs second)", fontsize=10)
-    ax.legend(loc="upper center", bbox_to_anchor=(0.5, -0.12 - 0.6 / fig.get_size_inches()[1]),
-              ncol=3, frameon=False, fontsize=8)
-    fig.tight_layout()
+    fig.legend(*ax.get_legend_handles_labels(), loc="lower center", ncol=3, frameon=False,
+               fontsize=8)
+    fig.tight_layout(rect=(0, 0.35 / fig.get_size_inches()[1], 1, 1))
     return fig

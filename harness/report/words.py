@@ -68,8 +68,9 @@ def region_text(v: Verdict) -> str:
 
 
 def region(v: Verdict) -> str:
-    """``region of practical equivalence accuracy ±0.01; certainty 95%``."""
-    return f"region of practical equivalence {region_text(v)}; certainty {v.certainty:.0%}"
+    """``region of practical equivalence of accuracy ±0.01 and certainty 95%``."""
+    return (f"region of practical equivalence of {region_text(v)} and certainty "
+            f"{v.certainty:.0%}")
 
 
 def rank_places(ranks) -> dict[str, str]:
@@ -88,10 +89,10 @@ def _datasets_hint(rows) -> str:
         return ""
     known = [x for x in need if x <= 200]
     if not known:
-        return " (more datasets would help, but more than 200 would be needed at these differences)"
-    return (f" (more datasets would help: about {min(known)}"
-            + (f" to {max(known)}" if max(known) != min(known) else "") + ", if new ones "
-            "behave like these)")
+        return " — more than 200 datasets would be needed at these differences"
+    return (f" — more datasets would decide it: about {min(known)}"
+            + (f" to {max(known)}" if max(known) != min(known) else "") + " in all, if new "
+            "ones behave like these")
 
 
 def bottom_line(v: Verdict) -> list[str]:
@@ -126,9 +127,10 @@ def bottom_line(v: Verdict) -> list[str]:
     if len(open_):
         parts.append(f"undecided against {names([other(r) for _, r in open_.iterrows()])}"
                      + _datasets_hint(open_))
-    body = (f"{lead} is " + "; ".join(parts) + " (Bayesian signed-rank test, "
-            f"{region(v)}).")
-    return [head, body]
+    body = f"{lead} is " + "; ".join(parts) + "."
+    how = (f"Judged by the Bayesian signed-rank test on each dataset's first metric, with a "
+           f"{region(v)}.")
+    return [head, body, how]
 
 
 def _dataset_line(v: Verdict, ds: str) -> str:
