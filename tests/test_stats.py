@@ -142,7 +142,6 @@ def test_demsar_friedman():
     # memory), so the null hypothesis is rejected
     assert stats.f.ppf(0.95, 3, 39) == pytest.approx(2.85, abs=0.01)
     assert res.f_p < 0.05
-    assert res.chi2_p == pytest.approx(stats.chi2.sf(res.chi2, 3))
 
 
 def test_friedman_from_average_ranks_alone():
@@ -170,9 +169,6 @@ def test_friedman_matches_scipy():
             res = friedman(m, tie_correction=tc)
             assert res.chi2 == pytest.approx(ref.statistic, rel=1e-10)
             assert res.chi2_p == pytest.approx(ref.pvalue, rel=1e-10)
-        n, k = m.shape
-        assert res.f == pytest.approx((n - 1) * res.chi2 / (n * (k - 1) - res.chi2))
-        assert res.f_p == pytest.approx(stats.f.sf(res.f, k - 1, (k - 1) * (n - 1)))
 
 
 def test_friedman_degenerate():

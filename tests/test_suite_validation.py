@@ -183,3 +183,32 @@ def test_a_data_table_given_as_a_suite_gets_a_pointer(tmp_path, capsys):
     assert len(err.splitlines()) == 1
     assert "a suite file (TOML) is expected" in err and "looks like a data table" in err
     assert "[[dataset]]" in err and "woodlot choose" in err
+
+def test_bad_equivalence_entries(write_suite, capsys, tmp_path):
+    check_bad(write_suite, capsys, tmp_path,
+              HEAD + "\n[equivalence]\naccuracy = -0.1\n" + WINE + TREE,
+              "[equivalence]", "field 'accuracy'", "smallest difference that matters")
+    check_bad(write_suite, capsys, tmp_path,
+              HEAD + "\n[equivalence]\nneg_root_mean_squared_error = \"2 percent\"\n" + WINE
+              + TREE, "field 'neg_root_mean_squared_error'")
+    check_bad(write_suite, capsys, tmp_path,
+              HEAD + "\n[equivalence]\naccurasy = 0.02\n" + WINE + TREE,
+              "did you mean 'accuracy'")
+    check_bad(write_suite, capsys, tmp_path,
+              HEAD + "\n[equivalence]\ncertainty = 1.5\n" + WINE + TREE,
+              "field 'certainty'", "probability")
+
+
+def test_equivalence_is_read(write_suite):
+    from harness.suite import load_suite
+
+    path = write_suite(HEAD + "\n[equivalence]\naccuracy = 0.02\nneg_root_mean_squared_error = "
+                       "\"2.5%\"\ncertainty = 0.9\n" + WINE + TREE)
+    eq = load_suite(path).equivalence
+    assert eq.certainty == 0.9
+    assert (eq.margin("accuracy").width, eq.margin("accuracy").relative) == (0.02, False)
+    rmse = eq.margin("neg_root_mean_squared_error")
+    assert rmse.relative and rmse.width == 0.025 and rmse.on(-40.0) == 1.0
+    # defaults: bounded scores ±0.01, errors ±1 % of the best
+    assert eq.margin("balanced_accuracy").width == 0.01
+    assert eq.margin("neg_mean_absolute_error").relative

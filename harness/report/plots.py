@@ -24,7 +24,8 @@ def grid(n: int, max_cols: int = 3, size=(4.6, 3.6), extra: float = 0.9) -> tupl
     ``extra`` inches of height for the title and legend)."""
     cols = min(max_cols, n)
     rows = math.ceil(n / cols)
-    fig = Figure(figsize=(max(size[0] * cols, MIN_WIDTH), size[1] * rows + extra))
+    height = size[1] * rows + extra + (1.0 if n == 1 else 0.0)  # one panel: room for the legend
+    fig = Figure(figsize=(max(size[0] * cols, MIN_WIDTH), height))
     axes = fig.subplots(rows, cols, squeeze=False)
     for ax in axes.flat[n:]:
         ax.set_visible(False)
