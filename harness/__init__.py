@@ -27,7 +27,8 @@ def load_results(folder, *, plan_only: bool = True):
     Columns include ``dataset``, ``strategy``, ``family``, ``method``, ``task``, ``repeat``,
     ``fold``, ``status`` (``ok``, ``error``, ``timeout``), ``message``, ``fit_seconds``,
     ``fit_cpu_seconds``, ``predict_seconds``, ``peak_memory_bytes``, ``model_bytes``,
-    ``n_train``, ``n_test``, ``curve`` (list of [members, score]) and one column per metric
+    ``n_train``, ``n_test``, ``curve`` (list of [members, score]), ``row_evidence`` (per-row
+    test evidence of single-split cells, `harness.row_evidence`) and one column per metric
     named after its scikit-learn scorer.
     """
     from harness.store import Store

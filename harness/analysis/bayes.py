@@ -25,12 +25,12 @@ it for every pair of a block.
 from __future__ import annotations
 
 import numpy as np
-from scipy import stats as _st
+from scipy import special as _sp
 
 __all__ = ["correlated_t", "joint_means", "signed_rank", "hodges_lehmann",
            "signed_rank_cdf", "repeats_needed", "datasets_needed", "SAMPLES", "PRIOR"]
 
-SAMPLES = 20000   # posterior samples of the signed-rank test (Monte Carlo sd ≤ 0.004)
+SAMPLES = 10000   # posterior samples of the signed-rank test (Monte Carlo sd ≤ 0.005)
 PRIOR = 0.5       # Dirichlet prior strength of the pseudo-observation at 0 (the published default)
 
 
@@ -63,8 +63,8 @@ def correlated_t(mean, var, n, ratio, margin) -> np.ndarray:
     spread = ok & (scale > 0)
     df = np.where(spread, n - 1, 1.0)
     sc = np.where(spread, scale, 1.0)
-    left = _st.t.cdf((-margin - mean) / sc, df)
-    right = _st.t.sf((margin - mean) / sc, df)
+    left = _sp.stdtr(df, (-margin - mean) / sc)          # Student's t cdf
+    right = _sp.stdtr(df, (mean - margin) / sc)          # its survival function, by symmetry
     out[..., 0] = np.where(spread, left, np.where(point, (mean < -margin) * 1.0, np.nan))
     out[..., 2] = np.where(spread, right, np.where(point, (mean > margin) * 1.0, np.nan))
     out[..., 1] = 1.0 - out[..., 0] - out[..., 2]
@@ -133,9 +133,10 @@ def signed_rank(diffs, margin, samples: int = SAMPLES, seed: int = 0, prior: flo
         def beyond(threshold: np.ndarray, above: bool) -> np.ndarray:
             gt = np.searchsorted(zs, threshold, side="right")
             ge = np.searchsorted(zs, threshold, side="left")
-            equal = suffix[:, ge] - suffix[:, gt]
             part = suffix[:, gt] if above else 1.0 - suffix[:, ge]
-            return np.sum(ws * (part + 0.5 * equal), axis=1)
+            if np.any(ge != gt):  # sums exactly at the threshold count one half
+                part = part + 0.5 * (suffix[:, ge] - suffix[:, gt])
+            return np.einsum("ij,ij->i", ws, part)
 
         right = beyond(2 * margin[p] - zs, above=True)
         left = beyond(-2 * margin[p] - zs, above=False)
@@ -202,8 +203,8 @@ def repeats_needed(mean, var, ratio, margin, certainty: float, folds: int,
 
 def _normal_probs(mean, scale, margin) -> np.ndarray:
     s = np.where(scale > 0, scale, 1e-300)
-    left = _st.norm.cdf((-margin - mean) / s)
-    right = _st.norm.sf((margin - mean) / s)
+    left = _sp.ndtr((-margin - mean) / s)
+    right = _sp.ndtr((mean - margin) / s)
     return np.stack([left, 1 - left - right, right], axis=-1)
 
 
