@@ -216,8 +216,6 @@ def check_file(path: str | Path, target: str, *, name: str | None = None,
     """Read a CSV or Parquet file with `read_table` and check it (errors name the file)."""
     path = Path(path)
     where = str(path)
-    if path.exists() and not path.is_file():
-        raise UserError(f"{path} is a folder, not a data file", file=where, field="path")
     frame = read_table(path, where=where, delimiter=delimiter, decimal=decimal)
     if path.suffix.lower() in PARQUET_SUFFIXES:
         if delimiter is not None or decimal is not None:

@@ -13,7 +13,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
-from sklearn.metrics import get_scorer_names
+from sklearn.metrics import get_scorer, get_scorer_names
 
 from harness.datasets import SOURCES, DatasetSpec
 from harness.datasets.openml import expand_benchmark_suite
@@ -30,6 +30,8 @@ SECTIONS = ("suite", "protocol", "also_measure", "equivalence", "dataset", "stra
             "speedup")
 DATA_SUFFIXES = (".csv", ".tsv", ".txt", ".parquet", ".pq")
 DEFAULT_CERTAINTY = 0.95
+SEED_MAX = 2**32 - 1  # NumPy's RandomState, which scikit-learn seeds, takes 0 .. 2**32 - 1
+AUTO = "auto"  # cell_memory: derived from the machine's memory and the number of workers
 
 
 @dataclass(frozen=True)
@@ -44,6 +46,7 @@ class Protocol:
     train_rows: int | None = None
     metrics: dict[str, tuple[str, ...]] = field(default_factory=lambda: dict(DEFAULT_METRICS))
     cell_timeout: float | None = 600.0  # seconds
+    cell_memory: int | str | None = AUTO  # bytes, AUTO, or None for no limit
 
 
 @dataclass(frozen=True)
@@ -117,6 +120,7 @@ _PROTOCOL_KEYS = {
     "seed": (int, "whole number"), "test_fraction": ((float, int), "number"),
     "train_rows": (int, "whole number"), "metrics": (dict, "table"),
     "cell_timeout": ((str, int, float), "duration such as \"90s\" or \"10m\""),
+    "cell_memory": (str, "size such as \"2GiB\" or \"500MB\", \"auto\" or \"none\""),
 }
 _ALSO_MEASURE_KEYS = {"memory": (bool, "true or false"), "model_size": (bool, "true or false"),
                       "size_curve": (bool, "true or false"),
@@ -132,23 +136,64 @@ _STRATEGY_KEYS = {"name": (str, "text"), "method": (str, "text"), "classifier": 
 
 
 def parse_duration(value: Any, where: str, key: str) -> float | None:
-    """``90``, ``"90s"``, ``"10m"``, ``"1h"``, ``"none"`` → seconds (None for no limit)."""
+    """``90``, ``"90s"``, ``"10m"``, ``"1h"``, ``"none"`` → seconds (None for no limit).
+    Zero, written either way, is refused: "none" says no limit."""
     if isinstance(value, bool):
         raise UserError("expected a duration such as \"90s\" or \"10m\"", file=where, field=key)
     if isinstance(value, (int, float)):
         seconds = float(value)
     else:
         text = str(value).strip().lower()
-        if text in ("none", "off", "0"):
+        if text in ("none", "off"):
             return None
         m = re.fullmatch(r"(\d+(?:\.\d+)?)\s*(s|m|h)?", text)
         if not m:
             raise UserError(f"'{value}' is not a duration; write e.g. \"90s\", \"10m\" or \"1h\"",
                             file=where, field=key)
         seconds = float(m.group(1)) * {"s": 1, "m": 60, "h": 3600, None: 1}[m.group(2)]
-    if seconds <= 0:
-        raise UserError("a duration must be positive", file=where, field=key)
+    if not seconds > 0 or seconds == float("inf"):
+        raise UserError(f"a duration must be positive and finite, not {value!r}; write "
+                        "\"none\" for no limit", file=where, field=key)
     return seconds
+
+
+_SIZE_UNITS = {"b": 1, "kb": 10**3, "mb": 10**6, "gb": 10**9, "tb": 10**12,
+               "kib": 2**10, "mib": 2**20, "gib": 2**30, "tib": 2**40}
+MIN_CELL_MEMORY = 64 * 2**20
+
+
+def parse_size(value: Any, where: str, key: str) -> int | str | None:
+    """``"2GiB"``, ``"500MB"``, ``"auto"``, ``"none"`` → bytes, `AUTO` or None (no limit)."""
+    text = str(value).strip().lower()
+    if text in ("none", "off"):
+        return None
+    if text == AUTO:
+        return AUTO
+    m = re.fullmatch(r"(\d+(?:\.\d+)?)\s*([a-z]+)", text)
+    if not m or m.group(2) not in _SIZE_UNITS:
+        raise UserError(f"'{value}' is not a size; write e.g. \"2GiB\", \"500MB\", \"auto\" or "
+                        "\"none\"", file=where, field=key)
+    size = int(float(m.group(1)) * _SIZE_UNITS[m.group(2)])
+    if size < MIN_CELL_MEMORY:
+        raise UserError(f"{value} is too small for a fit; give at least 64MiB (or \"none\")",
+                        file=where, field=key)
+    return size
+
+
+def check_seed(value: int, where: str, key: str | None = "seed") -> int:
+    if not 0 <= value <= SEED_MAX:
+        raise UserError(f"must be between 0 and {SEED_MAX} (2**32 - 1), got {value}",
+                        file=where, field=key)
+    return value
+
+
+def metric_task(metric: str) -> str:
+    """The task a scikit-learn scorer is for: ``regression`` for the regression metrics,
+    ``classification`` for every other (classification, ranking and label-agreement) one.
+    Read from the module of the scorer's metric function (``sklearn.metrics._regression``)."""
+    func = getattr(get_scorer(metric), "_score_func", None)
+    return "regression" if getattr(func, "__module__", "").endswith("._regression") \
+        else "classification"
 
 
 def _check_table(table: Any, spec: dict[str, tuple], where: str, section: str) -> dict[str, Any]:
@@ -168,20 +213,32 @@ def _check_table(table: Any, spec: dict[str, tuple], where: str, section: str) -
     return table
 
 
+def _table_hint(path: Path) -> str:
+    if path.suffix.lower() not in DATA_SUFFIXES:
+        return ""
+    return (f"; {path.name} looks like a data table: 'woodlot choose {path} --target "
+            f"COLUMN' compares the methods on it, 'woodlot add SUITE --file {path} "
+            "--target COLUMN' adds it to a suite")
+
+
 def read_toml(path: Path) -> tuple[dict[str, Any], str]:
     if not path.exists():
         raise UserError(f"suite file not found: {path}")
-    text = path.read_text(encoding="utf-8")
+    if not path.is_file():
+        raise UserError(f"{path} is a folder, not a suite file")
+    try:
+        text = path.read_text(encoding="utf-8")
+    except UnicodeDecodeError as exc:
+        raise UserError(f"not UTF-8 text (byte {exc.object[exc.start]:#04x} at position "
+                        f"{exc.start}); save the suite file as UTF-8{_table_hint(path)}",
+                        file=path) from None
+    except OSError as exc:
+        raise UserError(f"cannot read the suite file ({exc.strerror or exc})", file=path) from None
     try:
         return tomllib.loads(text), text
     except tomllib.TOMLDecodeError as exc:
-        hint = ""
-        if path.suffix.lower() in DATA_SUFFIXES:
-            hint = (f"; {path.name} looks like a data table: 'woodlot choose {path} --target "
-                    f"COLUMN' compares the methods on it, 'woodlot add SUITE --file {path} "
-                    "--target COLUMN' adds it to a suite")
         raise UserError(f"a suite file (TOML) is expected, but this is not valid TOML ({exc})"
-                        f"{hint}; a suite file looks like: [suite] name = \"demo\" · "
+                        f"{_table_hint(path)}; a suite file looks like: [suite] name = \"demo\" · "
                         "[[dataset]] name = \"wine\" from = \"sklearn\" load = \"load_wine\" · "
                         "[[strategy]] name = \"forest\" method = \"random-forest\" (README, "
                         "'Suite files')", file=path) from None
@@ -208,8 +265,8 @@ def load_suite(path: str | Path, *, expand: bool = True) -> Suite:
     protocol = _protocol(data.get("protocol", {}), f"{path}: [protocol]")
     also = AlsoMeasure(**_check_table(data.get("also_measure", {}), _ALSO_MEASURE_KEYS,
                                       f"{path}: [also_measure]", "also_measure"))
-    if also.curve_points < 2:
-        raise UserError(f"must be at least 2, got {also.curve_points}",
+    if not 2 <= also.curve_points <= 1000:
+        raise UserError(f"must be between 2 and 1000, got {also.curve_points}",
                         file=f"{path}: [also_measure]", field="curve_points")
     equivalence = _equivalence(data.get("equivalence", {}), f"{path}: [equivalence]")
     datasets = _datasets(data.get("dataset", []), path, expand)
@@ -232,6 +289,10 @@ def _protocol(table: Any, where: str) -> Protocol:
     for key, low in (("folds", 2), ("repeats", 1), ("train_rows", 2)):
         if key in t and t[key] < low:
             raise UserError(f"must be at least {low}, got {t[key]}", file=where, field=key)
+    if t.get("repeats", 1) > 1000:
+        raise UserError(f"must be at most 1000, got {t['repeats']}", file=where, field="repeats")
+    if "seed" in t:
+        check_seed(t["seed"], where)
     if "test_fraction" in t:
         if not 0 < t["test_fraction"] < 1:
             raise UserError(f"must be between 0 and 1, got {t['test_fraction']}", file=where,
@@ -261,13 +322,19 @@ def _protocol(table: Any, where: str) -> Protocol:
                 raise UserError("expected a non-empty list of scikit-learn scorer names",
                                 file=where, field=f"metrics.{task}")
             for n in names:
-                if n not in known:
-                    raise UserError(f"'{n}' is not a scikit-learn scorer name{closest(n, known)}",
-                                    file=where, field=f"metrics.{task}")
+                if not isinstance(n, str) or n not in known:
+                    raise UserError(f"'{n}' is not a scikit-learn scorer name"
+                                    f"{closest(str(n), known)}", file=where,
+                                    field=f"metrics.{task}")
+                if metric_task(n) != task:
+                    raise UserError(f"'{n}' is a {metric_task(n)} metric; it cannot score "
+                                    f"{task}", file=where, field=f"metrics.{task}")
             metrics[task] = tuple(names)
         t["metrics"] = metrics
     if "cell_timeout" in t:
         t["cell_timeout"] = parse_duration(t["cell_timeout"], where, "cell_timeout")
+    if "cell_memory" in t:
+        t["cell_memory"] = parse_size(t["cell_memory"], where, "cell_memory")
     return Protocol(**t)
 
 

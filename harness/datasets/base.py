@@ -121,13 +121,19 @@ def finish(name: str, X: pd.DataFrame, y: pd.Series, *, source: str, where: str,
            drop: list[str] | tuple[str, ...] = (), splits=None, meta=None) -> Dataset:
     """Check a loaded table and turn it into a `Dataset`.
 
-    ``where`` is the prefix for error messages (suite file and entry). Checks: not empty,
-    target has no missing values, classification target has at least two classes,
-    regression target is numeric; categorical columns exist. Object and boolean feature
-    columns are taken as categorical unless ``categorical`` lists the columns explicitly.
+    ``where`` is the prefix for error messages (suite file and entry). Checks: every column
+    has its own name, not empty, target has no missing values, classification target has at
+    least two classes, regression target is numeric and finite; categorical columns exist;
+    numeric features are finite (missing values are allowed, infinities are not). Object and
+    boolean feature columns are taken as categorical unless ``categorical`` lists the columns
+    explicitly.
     """
     X = X.copy()
     X.columns = [str(c) for c in X.columns]
+    repeated = sorted({c for c in X.columns if list(X.columns).count(c) > 1})
+    if repeated:
+        raise UserError(f"more than one column is named {', '.join(map(repr, repeated))}; give "
+                        "every column its own name", file=where)
     for col in drop:
         if col not in X.columns:
             raise UserError(f"column '{col}' to drop is not in the data (columns: "
@@ -159,6 +165,11 @@ def finish(name: str, X: pd.DataFrame, y: pd.Series, *, source: str, where: str,
             raise UserError(f"regression needs a numeric target, but it holds values such as "
                             f"{y.iloc[0]!r}", file=where, field="target")
         y = y.astype(float)
+        infinite = np.isinf(y.to_numpy())
+        if infinite.any():
+            raise UserError(f"the target holds {int(infinite.sum())} infinite value(s) (first in "
+                            f"row {int(np.argmax(infinite)) + 1}); drop those rows",
+                            file=where, field="target")
         if y.nunique() < 2:
             raise UserError("the target is constant; there is nothing to predict",
                             file=where, field="target")
@@ -184,9 +195,27 @@ def finish(name: str, X: pd.DataFrame, y: pd.Series, *, source: str, where: str,
             # nullable Int64/Float64 (Parquet): pd.NA would reach the estimators; NaN does not
             X[c] = X[c].to_numpy(dtype=float, na_value=np.nan)
     categorical = tuple(c for c in X.columns if c in set(categorical))
+    refuse_infinities(X, categorical, where)
     fp = fingerprint(X, y, task, categorical, splits)
     return Dataset(name=name, X=X, y=y, task=task, categorical=categorical, fingerprint=fp,
                    source=source, splits=splits, meta=dict(meta or {}))
+
+
+def refuse_infinities(X: pd.DataFrame, categorical: tuple[str, ...], where: str) -> None:
+    """`UserError` naming the numeric feature columns that hold +inf or -inf: the estimators
+    refuse them in every cell, so the whole comparison would fail."""
+    found = []
+    for c in X.columns:
+        if c in categorical:
+            continue
+        infinite = np.isinf(X[c].to_numpy(dtype=float, na_value=np.nan))
+        if infinite.any():
+            found.append(f"'{c}' ({int(infinite.sum())}, first in row "
+                         f"{int(np.argmax(infinite)) + 1})")
+    if found:
+        raise UserError(f"infinite values in column{'s' if len(found) > 1 else ''} "
+                        f"{', '.join(found)}; replace them (by a missing value, for instance) or "
+                        "drop the column", file=where)
 
 
 def as_category(column: pd.Series) -> pd.Series:

@@ -54,17 +54,51 @@ def ragged_row(path: Path, delimiter: str) -> tuple[int, int, int] | None:
     return None
 
 
+def header(path: Path, delimiter: str) -> list[str]:
+    """The names in a CSV file's first non-blank row, as written."""
+    with path.open(encoding="utf-8-sig", errors="replace", newline="") as f:
+        for row in csv.reader(f, delimiter=delimiter):
+            if row and not (len(row) == 1 and not row[0].strip()):
+                return row
+    return []
+
+
+def refuse_repeated_names(names, path: Path, where: str) -> None:
+    """`UserError` when a column name occurs more than once: pandas would rename the copies
+    (``a``, ``a.1``) without a word, and the wrong column could become the target."""
+    counts: dict[str, int] = {}
+    for n in map(str, names):
+        counts[n] = counts.get(n, 0) + 1
+    repeated = [f"'{n}' ({k} times)" for n, k in counts.items() if k > 1]
+    if repeated:
+        raise UserError(f"{path} names more than one column {', '.join(repeated)}; give every "
+                        "column its own name", file=where, field="path")
+
+
 def read_table(path: Path, *, where: str, delimiter: str | None = None,
                decimal: str | None = None) -> pd.DataFrame:
     """Read a CSV or Parquet file, with one clear message for every way it can fail."""
     if not path.exists():
         raise UserError(f"file not found: {path}", file=where, field="path")
+    if not path.is_file():
+        raise UserError(f"{path} is a folder, not a data file", file=where, field="path")
     if path.suffix.lower() in PARQUET_SUFFIXES:
         try:
-            return pd.read_parquet(path)
+            frame = pd.read_parquet(path)
         except Exception as exc:  # pyarrow raises several unrelated types
             raise UserError(f"{path} is not a readable Parquet file ({exc})", file=where,
                             field="path") from None
+        refuse_repeated_names(frame.columns, path, where)
+        return frame
+    try:
+        return _read_csv(path, where, delimiter, decimal)
+    except OSError as exc:
+        raise UserError(f"cannot read {path} ({exc.strerror or exc})", file=where,
+                        field="path") from None
+
+
+def _read_csv(path: Path, where: str, delimiter: str | None,
+              decimal: str | None) -> pd.DataFrame:
     sniffed = sniff_csv(path)
     delimiter = delimiter or sniffed[0]
     decimal = decimal or sniffed[1]
@@ -77,6 +111,7 @@ def read_table(path: Path, *, where: str, delimiter: str | None = None,
     except (UnicodeDecodeError, pd.errors.EmptyDataError) as exc:
         raise UserError(f"{path} is not a readable CSV file ({exc})", file=where,
                         field="path") from None
+    refuse_repeated_names(header(path, delimiter), path, where)
     ragged = ragged_row(path, delimiter)
     if ragged is not None:
         line, n, width = ragged
