@@ -8,10 +8,12 @@ from dataclasses import dataclass
 
 from harness import provenance
 from harness.datasets import Dataset, Split, load_dataset
+from harness.preprocess import pipeline_text
 from harness.splits import make_splits
 from harness.strategies import Strategy
 from harness.suite import SpeedupSettings, Suite
-from harness.versions import estimator_distribution, result_versions
+from harness.versions import (CELL_CODE, SPEEDUP_CODE, estimator_distribution,
+                              result_versions)
 from harness.work_units import Cell, SpeedupPoint, unit_key
 
 SPEEDUP_FORMAT = 1  # bump when the meaning of a stored speedup point changes
@@ -36,10 +38,12 @@ def load_datasets(suite: Suite) -> dict[str, Dataset]:
     return {spec.name: load_dataset(spec) for spec in suite.datasets}
 
 
-def versions_for(strategy: Strategy, task: str) -> dict[str, str]:
-    """The versions a result of ``strategy`` on ``task`` depends on (`harness.versions`)."""
+def versions_for(strategy: Strategy, task: str,
+                 code: tuple[str, ...] = CELL_CODE) -> dict[str, str]:
+    """The versions a result of ``strategy`` on ``task`` depends on (`harness.versions`):
+    libraries, the estimator's own package and woodlot's code that computes it."""
     dist = estimator_distribution(strategy.estimator_path(task) or "")
-    return result_versions((dist,) if dist else ())
+    return result_versions((dist,) if dist else (), code)
 
 
 def make_plan(suite: Suite, datasets: dict[str, Dataset] | None = None) -> Plan:
@@ -60,7 +64,7 @@ def make_plan(suite: Suite, datasets: dict[str, Dataset] | None = None) -> Plan:
             if not strategy.supports(ds.task):
                 skipped.append((strategy.name, ds.name))
                 continue
-            estimator = strategy.describe(ds.task, p.seed)
+            estimator = pipeline_text(strategy, ds, p.seed)
             versions = versions_for(strategy, ds.task)
             for s in splits:
                 key = unit_key(fingerprint=ds.fingerprint, estimator=estimator, train=s.train,
@@ -131,8 +135,8 @@ def plan_speedup(plan: Plan, settings: SpeedupSettings,
                 notes.append(f"strategy '{strategy.name}' has no estimator for dataset "
                              f"'{name}'s task; left out of the speedup points")
                 continue
-            estimator = strategy.describe(ds.task, suite.protocol.seed)
-            versions = versions_for(strategy, ds.task)
+            estimator = pipeline_text(strategy, ds, suite.protocol.seed)
+            versions = versions_for(strategy, ds.task, SPEEDUP_CODE)
             for p in counts:
                 key = unit_key(fingerprint=ds.fingerprint, estimator=estimator,
                                train=split.train, test=split.test, versions=versions,

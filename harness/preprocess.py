@@ -1,4 +1,6 @@
-"""Preprocessing fitted inside each fold, on the training part only (no leakage).
+"""The pipeline a unit of work fits: the strategy's estimator behind the preprocessing that is
+fitted inside each fold, on the training part only (no leakage). The plan hashes this whole
+pipeline into the unit's key (`pipeline_text`); the worker fits the same one.
 
 - Numeric columns: median imputation, except for histogram boosting, which handles missing
   values natively.
@@ -17,6 +19,7 @@ from sklearn.pipeline import Pipeline, make_pipeline
 from sklearn.preprocessing import OrdinalEncoder
 
 from harness.datasets import Dataset
+from harness.strategies import Strategy, canonical
 
 NATIVE = ("HistGradientBoostingClassifier", "HistGradientBoostingRegressor")
 
@@ -45,6 +48,13 @@ def with_preprocessing(estimator, dataset: Dataset):
                                  ("numeric", SimpleImputer(strategy="median"), nums)],
                                 verbose_feature_names_out=False)
     return Pipeline([("preprocess", pre), ("model", estimator)])
+
+
+def pipeline_text(strategy: Strategy, dataset: Dataset, seed: int | None) -> str:
+    """Canonical text of the whole pipeline ``strategy`` fits on ``dataset`` (threads as the
+    strategy leaves them; the key holds the thread count apart): every step's class and
+    parameters."""
+    return canonical(with_preprocessing(strategy.build(dataset.task, seed), dataset))
 
 
 def final_estimator(model):

@@ -9,7 +9,7 @@ import sys
 import time
 from pathlib import Path
 
-from harness.versions import installed_versions
+from harness.versions import CELL_CODE, SPEEDUP_CODE, code_version, installed_versions
 
 
 def cpu_model() -> str:
@@ -35,9 +35,12 @@ def collect(command: str | None = None) -> dict:
         "python": sys.version.split()[0],
         "platform": platform.platform(),
         "host": socket.gethostname(),
+        "process": os.getpid(),
         "cpu_model": cpu_model(),
         "cores": os.cpu_count(),
         "load_average": load_average(),
         "libraries": installed_versions(),
+        "woodlot_code": {"cells": code_version(CELL_CODE),
+                         "speedup points": code_version(SPEEDUP_CODE)},
         "started": time.strftime("%Y-%m-%dT%H:%M:%S%z"),
     }

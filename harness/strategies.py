@@ -91,15 +91,10 @@ class Strategy:
             est.set_params(random_state=seed)
         return est
 
-    def describe(self, task: str, seed: int | None = None) -> str:
-        """Canonical text of the resolved estimator: class path and every parameter.
-        Part of the cell key, so any change of class, parameter or default recomputes."""
-        est = self.build(task, seed)
-        return canonical(est)
-
 
 def canonical(est) -> str:
-    """Class path plus every parameter, nested estimators expanded, as stable JSON."""
+    """Class path plus every parameter, nested estimators expanded, as stable JSON: part of
+    the key of every unit of work, so any change of class, parameter or default recomputes."""
     def enc(v):
         if hasattr(v, "get_params"):
             return {"class": f"{type(v).__module__}.{type(v).__qualname__}",

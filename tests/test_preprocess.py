@@ -7,7 +7,7 @@ import pandas as pd
 
 from harness import load_results, run_suite
 from harness.datasets import finish
-from harness.execution.preprocess import with_preprocessing
+from harness.preprocess import with_preprocessing
 from harness.strategies import CATALOGUE, Strategy, class_path
 
 

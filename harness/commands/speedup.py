@@ -23,6 +23,7 @@ import psutil
 from harness import provenance
 from harness.commands.lifecycle import Echo, Session, session, stderr_echo
 from harness.commands.progress import Progress
+from harness.execution.memory import cell_limit
 from harness.execution.speedup_point import run_point
 from harness.locks import exclusive
 from harness.plan import plan_speedup, usable_cores
@@ -92,6 +93,7 @@ def measure_points(s: Session, settings: SpeedupSettings, *, fresh: bool = False
     result.reused = len(points) - len(todo)
     timeout = s.suite.protocol.cell_timeout
     timeout = None if timeout is None else timeout * (settings.repeats + 1)
+    memory, memory_how = cell_limit(s.suite.protocol.cell_memory, 1)
     started = time.time()
     prov: dict[str, Any] = {
         "cpu_model": provenance.cpu_model(), "cores": os.cpu_count(), "usable_cores": cores,
@@ -100,6 +102,7 @@ def measure_points(s: Session, settings: SpeedupSettings, *, fresh: bool = False
         "method": "each point alone in a fresh process; n_jobs = p where the estimator has "
                   "it and OpenMP/BLAS limited to p (threadpoolctl), read back inside each fit; "
                   "one untimed warm-up fit, then the timed repeats",
+        "memory_limit": memory_how,
     }
     for note in notes:
         echo(f"speedup: {note}")
@@ -108,7 +111,7 @@ def measure_points(s: Session, settings: SpeedupSettings, *, fresh: bool = False
              f"workers {', '.join(map(str, counts))}, {settings.repeats} repeat(s) each, one "
              "point at a time in a fresh process")
         with _machine_lock(echo):
-            _measure(s, todo, timeout, result, prov, notes, cores, progress, echo)
+            _measure(s, todo, (timeout, memory), result, prov, notes, cores, progress, echo)
     prov["seconds"] = round(time.time() - started, 1)
     prov["notes"] = notes
     result.provenance = prov
@@ -116,8 +119,9 @@ def measure_points(s: Session, settings: SpeedupSettings, *, fresh: bool = False
     return result
 
 
-def _measure(s: Session, todo, timeout, result: SpeedupResult, prov: dict, notes: list[str],
-             cores: int, progress: bool | None, echo: Echo) -> None:
+def _measure(s: Session, todo, limits: tuple[float | None, int | None], result: SpeedupResult,
+             prov: dict, notes: list[str], cores: int, progress: bool | None,
+             echo: Echo) -> None:
     others = other_woodlot_processes()
     if others:
         notes.append(f"{len(others)} other woodlot process(es) were running when the speedup "
@@ -132,7 +136,7 @@ def _measure(s: Session, todo, timeout, result: SpeedupResult, prov: dict, notes
     bar = Progress(len(todo), label="speedup points", enabled=progress)
     try:
         for point in todo:
-            rows = run_point(point, s.plan.datasets[point.dataset], timeout)
+            rows = run_point(point, s.plan.datasets[point.dataset], *limits)
             s.store.put_speedup(rows, s.run)
             result.ran += 1
             failed = rows[0]["status"] != OK
@@ -145,14 +149,14 @@ def _measure(s: Session, todo, timeout, result: SpeedupResult, prov: dict, notes
 
 def speedup_suite(path, *, out=None, fresh: bool = False, retry_failed: bool = False,
                   progress: bool | None = None, echo: Echo = stderr_echo,
-                  command: str | None = None,
-                  write_outputs: bool = True) -> tuple[SpeedupResult, Outputs | None]:
+                  command: str | None = None, write_outputs: bool = True,
+                  wait: bool = False) -> tuple[SpeedupResult, Outputs | None]:
     """``woodlot speedup``: the speedup points of a suite alone, then the outputs rewritten.
 
     A suite without a ``[speedup]`` section is measured with the defaults (every dataset and
     strategy, workers 1, 2, 4, … up to the cores present, 3 repeats).
     """
-    with session(path, out=out, command=command, timing="speedup points only",
+    with session(path, out=out, command=command, timing="speedup points only", wait=wait,
                  echo=echo) as s:
         if s.suite.speedup is None:
             echo("speedup: the suite has no [speedup] section; measuring every dataset and "

@@ -297,7 +297,9 @@ class DaskExecutor(Executor):
 
     # ------------------------------------------------------------------ running
     def run(self, cells: list[Cell], datasets: dict[str, Dataset],
-            timeout: float | None) -> Iterator[dict]:
+            timeout: float | None, memory: int | None = None) -> Iterator[dict]:
+        """``memory`` is not enforced here: the cluster's workers have their own memory
+        limits (``dask worker --memory-limit``), which restart a worker that passes them."""
         if not cells:
             return
         self.open()

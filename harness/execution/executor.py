@@ -36,8 +36,10 @@ class Executor(ABC):
 
     @abstractmethod
     def run(self, cells: list[Cell], datasets: dict[str, Dataset],
-            timeout: float | None) -> Iterator[dict]:
-        """Run ``cells`` (``datasets`` keyed by fingerprint); yield each row as it finishes."""
+            timeout: float | None, memory: int | None = None) -> Iterator[dict]:
+        """Run ``cells`` (``datasets`` keyed by fingerprint); yield each row as it finishes.
+        ``timeout`` (seconds) and ``memory`` (bytes, `harness.execution.memory`) limit each
+        cell, where the executor can enforce them."""
 
     def close(self) -> None:
         """Release everything `open` and `run` started."""

@@ -1,6 +1,8 @@
 """The local executor: a pool of worker processes owned by woodlot (not
 `concurrent.futures`), because a cell that exceeds its time limit must be stopped, which only
-killing its process can do. Each worker receives each dataset once."""
+ending its process (and every process it started) can do. Each worker receives each dataset
+once, runs one cell at a time within the cell memory limit (`harness.execution.memory`), and
+dies with woodlot if woodlot is killed outright."""
 
 from __future__ import annotations
 
@@ -14,14 +16,16 @@ from typing import Iterator
 from harness.datasets import Dataset
 from harness.errors import UserError
 from harness.execution.executor import Executor
-from harness.execution.processes import context
+from harness.execution.memory import limited
+from harness.execution.processes import context, death, die_with_parent, stop_tree
 from harness.execution.run_cell import run_cell
 from harness.work_units import ERROR, TIMEOUT, Cell, failed_row
 
 
-def _worker_main(conn) -> None:
+def _worker_main(conn, memory: int | None) -> None:
     """Loop of one worker process: keep datasets sent to it, run the cells it is given."""
     signal.signal(signal.SIGINT, signal.SIG_IGN)  # the parent handles Ctrl-C and stops us
+    die_with_parent()
     for var in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS"):
         os.environ.setdefault(var, "1")
     datasets: dict[str, Dataset] = {}
@@ -35,15 +39,17 @@ def _worker_main(conn) -> None:
             datasets[message[1]] = message[2]
         elif kind == "cell":
             cell: Cell = message[1]
-            conn.send(run_cell(cell, datasets[cell.fingerprint]))
+            with limited(memory):
+                row = run_cell(cell, datasets[cell.fingerprint])
+            conn.send(row)
         else:
             return
 
 
 class _Worker:
-    def __init__(self, ctx) -> None:
+    def __init__(self, ctx, memory: int | None) -> None:
         self.conn, child = ctx.Pipe()
-        self.process = ctx.Process(target=_worker_main, args=(child,), daemon=True)
+        self.process = ctx.Process(target=_worker_main, args=(child, memory), daemon=True)
         self.process.start()
         child.close()
         self.has: set[str] = set()
@@ -58,6 +64,7 @@ class _Worker:
         self.cell, self.started = cell, time.perf_counter()
 
     def stop(self, force: bool = False) -> None:
+        """Ask the worker to finish (``force``: end it and every process it started)."""
         if not force:
             try:
                 self.conn.send(("stop",))
@@ -65,9 +72,14 @@ class _Worker:
                 pass
             self.process.join(timeout=2)
         if self.process.is_alive():
-            self.process.kill()
+            stop_tree(self.process.pid)
             self.process.join(timeout=5)
         self.conn.close()
+
+    def died(self) -> str:
+        """How the worker ended, once its pipe has closed."""
+        self.process.join(timeout=5)
+        return death(self.process.exitcode)
 
 
 class LocalExecutor(Executor):
@@ -81,12 +93,12 @@ class LocalExecutor(Executor):
         self.jobs = jobs or os.cpu_count() or 1
 
     def run(self, cells: list[Cell], datasets: dict[str, Dataset],
-            timeout: float | None) -> Iterator[dict]:
+            timeout: float | None, memory: int | None = None) -> Iterator[dict]:
         if not cells:
             return
         ctx = context()
         pending = deque(cells)
-        workers = [_Worker(ctx) for _ in range(min(self.jobs, len(cells)))]
+        workers = [_Worker(ctx, memory) for _ in range(min(self.jobs, len(cells)))]
         try:
             while pending or any(w.cell for w in workers):
                 for w in workers:
@@ -104,22 +116,21 @@ class LocalExecutor(Executor):
                         try:
                             row = w.conn.recv()
                         except (EOFError, OSError):
-                            code = w.process.exitcode if not w.process.is_alive() else None
-                            yield failed_row(w.cell, ERROR, "worker process died while running "
-                                             f"this cell (exit code {code}); out of memory?")
-                            workers[workers.index(w)] = self._replace(w, ctx)
+                            yield failed_row(w.cell, ERROR, "the worker process died while "
+                                             f"running this cell ({w.died()})")
+                            workers[workers.index(w)] = self._replace(w, ctx, memory)
                             continue
                         w.cell = None
                         yield row
                     elif timeout is not None and time.perf_counter() - w.started > timeout:
                         yield failed_row(w.cell, TIMEOUT, f"stopped after the cell time limit "
                                          f"of {timeout:g} s")
-                        workers[workers.index(w)] = self._replace(w, ctx)
+                        workers[workers.index(w)] = self._replace(w, ctx, memory)
         finally:
             for w in workers:
                 w.stop(force=w.cell is not None)
 
     @staticmethod
-    def _replace(worker: _Worker, ctx) -> _Worker:
+    def _replace(worker: _Worker, ctx, memory: int | None) -> _Worker:
         worker.stop(force=True)
-        return _Worker(ctx)
+        return _Worker(ctx, memory)

@@ -8,6 +8,7 @@ from __future__ import annotations
 import functools
 import os
 import pickle
+import signal
 import socket
 import time
 import traceback
@@ -19,7 +20,8 @@ from threadpoolctl import threadpool_limits
 
 from harness.datasets import CLASSIFICATION, Dataset
 from harness.execution.measure import measured
-from harness.execution.preprocess import (final_estimator, transform_for_members,
+from harness.execution.memory import refusal
+from harness.preprocess import (final_estimator, transform_for_members,
                                           with_preprocessing)
 from harness.row_evidence import encode
 from harness.work_units import ERROR, OK, Cell
@@ -133,9 +135,16 @@ def set_threads(estimator, threads: int) -> None:
     estimator.set_params(**{k: threads for k in params if k == "n_jobs" or k.endswith("__n_jobs")})
 
 
+def interrupts_ignored() -> bool:
+    """Whether this process ignores Ctrl-C (woodlot's worker processes do): then a
+    KeyboardInterrupt can only come from the estimator's own code."""
+    return signal.getsignal(signal.SIGINT) is signal.SIG_IGN
+
+
 def run_cell(cell: Cell, dataset: Dataset) -> dict[str, Any]:
-    """Fit, predict, score and measure one cell. Never raises for the estimator's errors:
-    they become a row with status ``error`` and the message."""
+    """Fit, predict, score and measure one cell. Never raises for the estimator's errors
+    (a KeyboardInterrupt included, where Ctrl-C is ignored): they become a row with status
+    ``error`` and the message."""
     row: dict[str, Any] = {"key": cell.key, **cell.identity(), "threads": cell.threads,
                            "timing": cell.timing, "worker": f"{socket.gethostname()}:{os.getpid()}"}
     started = time.time()
@@ -167,8 +176,15 @@ def run_cell(cell: Cell, dataset: Dataset) -> dict[str, Any]:
                    peak_memory_bytes=fit.peak_bytes,
                    model_bytes=len(pickle.dumps(model, protocol=5)) if cell.model_size else None,
                    curve=curve, row_evidence=evidence)
+    except MemoryError as exc:  # the cell memory limit, or the machine's memory
+        row.update(status=ERROR, message=refusal(exc), detail=traceback.format_exc()[-4000:])
     except Exception as exc:  # the estimator's failure is a result, not a crash
         row.update(status=ERROR, message=f"{type(exc).__name__}: {exc}".splitlines()[0][:500],
                    detail=traceback.format_exc()[-4000:])
+    except KeyboardInterrupt:
+        if not interrupts_ignored():  # a real Ctrl-C: let the run stop
+            raise
+        row.update(status=ERROR, message="KeyboardInterrupt raised by the estimator (not a "
+                   "Ctrl-C: this process ignores those)", detail=traceback.format_exc()[-4000:])
     row["seconds"] = time.time() - started
     return row

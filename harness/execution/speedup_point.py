@@ -25,9 +25,10 @@ from threadpoolctl import ThreadpoolController, threadpool_limits
 
 from harness.datasets import Dataset
 from harness.execution.measure import measured
-from harness.execution.preprocess import with_preprocessing
-from harness.execution.processes import context, end, stop_tree
-from harness.execution.run_cell import set_threads
+from harness.execution.memory import limited, refusal
+from harness.execution.processes import context, death, die_with_parent, end, stop_tree
+from harness.execution.run_cell import interrupts_ignored, set_threads
+from harness.preprocess import with_preprocessing
 from harness.plan import WARMUP_ROWS
 from harness.work_units import ERROR, OK, TIMEOUT, SpeedupPoint, failed_point
 
@@ -112,14 +113,22 @@ def measure_point(point: SpeedupPoint, dataset: Dataset) -> list[dict[str, Any]]
                              "other_load": max(0.0, busy - fit.cpu) / fit.wall
                              if fit.wall > 0 else None,
                              "limits": model.seen})
+    except MemoryError as exc:
+        return failed_point(point, ERROR, refusal(exc))
     except Exception as exc:  # the estimator's failure is a result, not a crash
         return failed_point(point, ERROR, f"{type(exc).__name__}: {exc}".splitlines()[0][:500])
+    except KeyboardInterrupt:
+        if not interrupts_ignored():
+            raise
+        return failed_point(point, ERROR, "KeyboardInterrupt raised by the estimator")
     return rows
 
 
-def _point_main(conn, point: SpeedupPoint, dataset: Dataset) -> None:
+def _point_main(conn, point: SpeedupPoint, dataset: Dataset, memory: int | None) -> None:
     signal.signal(signal.SIGINT, signal.SIG_IGN)  # the parent handles Ctrl-C and stops us
-    rows = measure_point(point, dataset)
+    die_with_parent()
+    with limited(memory):
+        rows = measure_point(point, dataset)
     # Worker processes started by the fits (joblib's pool behind n_jobs) end with the point,
     # so that nothing of this point runs while the next one is measured.
     end(psutil.Process().children(recursive=True), kill=False)
@@ -127,12 +136,15 @@ def _point_main(conn, point: SpeedupPoint, dataset: Dataset) -> None:
     conn.close()
 
 
-def run_point(point: SpeedupPoint, dataset: Dataset, timeout: float | None) -> list[dict[str, Any]]:
-    """`measure_point` in a fresh process of its own; stopped after ``timeout`` seconds."""
+def run_point(point: SpeedupPoint, dataset: Dataset, timeout: float | None,
+              memory: int | None = None) -> list[dict[str, Any]]:
+    """`measure_point` in a fresh process of its own; stopped after ``timeout`` seconds,
+    allowed ``memory`` bytes (`harness.execution.memory`)."""
     ctx = context()
     receive, send = ctx.Pipe(duplex=False)
     # Not a daemon: daemonic processes may not start the worker processes of n_jobs.
-    process = ctx.Process(target=_point_main, args=(send, point, dataset), daemon=False)
+    process = ctx.Process(target=_point_main, args=(send, point, dataset, memory),
+                          daemon=False)
     process.start()
     send.close()
     try:
@@ -141,8 +153,8 @@ def run_point(point: SpeedupPoint, dataset: Dataset, timeout: float | None) -> l
                 return receive.recv()
             except (EOFError, OSError):
                 process.join(timeout=5)
-                return failed_point(point, ERROR, "the process measuring this point died (exit "
-                                    f"code {process.exitcode}); out of memory?")
+                return failed_point(point, ERROR, "the process measuring this point died "
+                                    f"({death(process.exitcode)})")
         return failed_point(point, TIMEOUT, f"stopped after the point's time limit of "
                             f"{timeout:g} s")
     finally:
