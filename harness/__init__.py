@@ -33,7 +33,7 @@ def load_results(folder, *, plan_only: bool = True):
     """
     from harness.store import Store
 
-    with Store(folder, create=False) as store:
+    with Store(folder, read_only=True) as store:
         return store.cells_frame(plan_only=plan_only)
 
 

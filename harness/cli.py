@@ -1,13 +1,34 @@
-"""The ``woodlot`` command: parses options, calls `harness.commands`, prints the outcome."""
+"""The ``woodlot`` command: parses options, calls `harness.commands`, prints the outcome.
+
+Exit statuses: 0 done; 1 ``agree`` found a score that differs; 2 bad input (suite, data,
+options, folder, a damaged store, a full disk, a results folder in use); 3 a run finished but
+not one cell of its plan succeeded; 130 stopped by Ctrl-C; 141 the reader of the output went
+away; 143 stopped by SIGTERM.
+"""
 
 from __future__ import annotations
 
 import argparse
+import os
 import shlex
+import signal
 import sys
+import threading
 
 from harness.errors import UserError
 from harness.versions import WOODLOT_VERSION
+
+
+ALL_FAILED = 3
+
+
+class Terminated(KeyboardInterrupt):
+    """SIGTERM, handled as Ctrl-C is: workers stopped, the run marked interrupted."""
+
+
+def _on_sigterm(signum, frame) -> None:
+    signal.signal(signal.SIGTERM, signal.SIG_IGN)  # once: let the clean-up finish
+    raise Terminated()
 
 
 def _command_line() -> str:
@@ -48,11 +69,15 @@ def _run(args) -> int:
                              workers=args.workers)
     result = run_suite(args.suite, out=args.out, fresh=args.fresh, executor=executor,
                        retry_failed=args.retry_failed, progress=False if args.quiet else None,
-                       command=_command_line())
+                       command=_command_line(), wait=args.wait_for_folder)
     print(f"{result.planned} cells planned: {result.reused} already stored, {result.ran} run"
           + (f", {result.failed} failed (see tables/failures.md)" if result.failed else "") + ".")
     _outcome(result.outputs)
     print(f"Results in {result.folder}/ (report.html, tables/, plots/, cells.sqlite)")
+    if result.planned and not result.succeeded:
+        print(f"woodlot: not one of the {result.planned} cells succeeded; the reasons are in "
+              f"{result.folder}/tables/failures.md", file=sys.stderr)
+        return ALL_FAILED
     return 0
 
 
@@ -62,7 +87,7 @@ def _speedup(args) -> int:
     result, outputs = speedup_suite(args.suite, out=args.out, fresh=args.fresh,
                                     retry_failed=args.retry_failed,
                                     progress=False if args.quiet else None,
-                                    command=_command_line())
+                                    command=_command_line(), wait=args.wait_for_folder)
     print(f"{result.planned} speedup points planned (workers "
           f"{', '.join(map(str, result.workers))}): {result.reused} already stored, "
           f"{result.ran} measured" + (f", {result.failed} failed" if result.failed else "") + ".")
@@ -74,10 +99,12 @@ def _speedup(args) -> int:
 def _report(args) -> int:
     from harness.report.writer import write_report
 
-    outputs = write_report(args.folder)
+    outputs = write_report(args.folder, out=args.out)
     _outcome(outputs)
     print(f"Wrote {len(outputs.files)} files in {outputs.folder}/ (report.html, tables/, "
           "plots/)")
+    if outputs.status:
+        print(f"woodlot: {outputs.status}", file=sys.stderr)
     return 0
 
 
@@ -130,6 +157,9 @@ def _choose(args) -> int:
 def _resume_options(p: argparse.ArgumentParser, what: str) -> None:
     p.add_argument("--fresh", action="store_true",
                    help=f"forget the stored {what} and start over")
+    p.add_argument("--wait-for-folder", action="store_true",
+                   help="when another run is using the results folder, wait for it to finish "
+                   "(default: stop, naming it)")
     p.add_argument("--retry-failed", action="store_true",
                    help=f"run again {what} stored as errors or timeouts")
     p.add_argument("--quiet", action="store_true", help="no progress bar")
@@ -165,6 +195,8 @@ def parser() -> argparse.ArgumentParser:
     rp = sub.add_parser("report", help="rewrite tables, plots and report.html of a results "
                         "folder from its store")
     rp.add_argument("folder")
+    rp.add_argument("--out", metavar="DIR", help="write the report here instead of into the "
+                    "results folder (which is then only read)")
     rp.set_defaults(fn=_report)
     ag = sub.add_parser("agree", help="check whether two results folders agree: scores that "
                         "moved beyond the fold-to-fold noise (exit 1 if any), timing ratios")
@@ -218,15 +250,27 @@ def parser() -> argparse.ArgumentParser:
 
 def main(argv: list[str] | None = None) -> int:
     args = parser().parse_args(argv)
+    main_thread = threading.current_thread() is threading.main_thread()
+    previous = signal.signal(signal.SIGTERM, _on_sigterm) if main_thread else None
     try:
         return args.fn(args)
     except UserError as exc:
         print(f"woodlot: {exc}", file=sys.stderr)
         return 2
+    except Terminated:
+        print("woodlot: stopped by SIGTERM; every finished cell is kept in the store, run the "
+              "same command again to resume", file=sys.stderr)
+        return 128 + signal.SIGTERM
     except KeyboardInterrupt:
         print("woodlot: interrupted; every finished cell is kept in the store, run the same "
               "command again to resume", file=sys.stderr)
         return 130
+    except BrokenPipeError:  # the reader of our output went away (| head): nothing to say
+        os.dup2(os.open(os.devnull, os.O_WRONLY), sys.stdout.fileno())
+        return 141  # 128 + SIGPIPE, as a shell reports it
+    finally:
+        if main_thread:
+            signal.signal(signal.SIGTERM, signal.SIG_DFL if previous is None else previous)
 
 
 if __name__ == "__main__":

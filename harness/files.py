@@ -27,13 +27,17 @@ def writable_folder(folder: str | Path, option: str = "--out") -> Path:
     (naming ``option``) before anything is written otherwise."""
     folder = Path(folder)
     if folder.exists() and not folder.is_dir():
-        raise UserError(f"{folder} is a file, not a folder; give a folder", file=option)
+        raise UserError(f"{folder} is a file, not a folder; give a folder with {option}",
+                        file=folder)
     existing = folder
     while not existing.exists() and existing != existing.parent:
         existing = existing.parent
-    if not existing.is_dir() or not os.access(existing, os.W_OK | os.X_OK):
-        raise UserError(f"cannot write into {existing} (permission denied or read-only); choose "
-                        "another folder", file=option)
+    if not existing.is_dir():
+        raise UserError(f"{existing} is a file, so {folder} cannot be made; give a folder with "
+                        f"{option}", file=folder)
+    if not os.access(existing, os.W_OK | os.X_OK):
+        raise UserError(f"cannot write into {existing} (read-only or permission denied); give "
+                        f"a folder you may write to with {option}", file=folder)
     return folder
 
 

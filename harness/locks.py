@@ -81,3 +81,24 @@ def exclusive(path: str | Path, *, wait: bool, note: str = "",
             _unlock(fd)
     finally:
         os.close(fd)
+
+
+def holder(path: str | Path) -> str | None:
+    """What the process holding the lock on ``path`` wrote into it, or None when no process
+    holds it (or there is no such file). Takes the lock for an instant to find out."""
+    path = Path(path)
+    try:
+        fd = os.open(path, os.O_RDONLY)
+    except OSError:
+        return None
+    try:
+        try:
+            free = _try_lock(fd)
+        except OSError:  # a file system without locks: nobody can be told apart
+            return None
+        if free:
+            _unlock(fd)
+            return None
+        return path.read_text(encoding="utf-8", errors="replace").strip() or "another process"
+    finally:
+        os.close(fd)

@@ -9,6 +9,7 @@
 
 from __future__ import annotations
 
+import functools
 import json
 import sqlite3
 import time
@@ -18,6 +19,7 @@ from typing import Any, Iterable
 import pandas as pd
 
 from harness.errors import UserError
+from harness.folder_lock import running_elsewhere
 
 STORE_NAME = "cells.sqlite"
 SCHEMA_VERSION = 3
@@ -65,43 +67,168 @@ def remove_store(folder: Path) -> None:
         (folder / (STORE_NAME + suffix)).unlink(missing_ok=True)
 
 
-class Store:
-    """Open (or create) the store of a results folder."""
+def store_problem(path: Path, exc: Exception) -> UserError:
+    """The one message for an SQLite error on the store at ``path``."""
+    text = str(exc)
+    low = text.lower()
+    if "full" in low:
+        why = ("the disk is full; every cell stored before this is kept: free some space and "
+               "run the same command again to resume")
+    elif "disk i/o" in low:
+        why = (f"the system refused a read or write ({text}: disk full, file size limit or a "
+               "failing disk?); every cell stored before this is kept")
+    elif "readonly" in low or "read-only" in low:
+        why = "the store cannot be written here (read-only); choose another --out"
+    elif "malformed" in low or "not a database" in low or "no such" in low \
+            or "corrupt" in low or isinstance(exc, json.JSONDecodeError):
+        why = (f"the store is damaged ({text}); run the suite again with --fresh into this "
+               "folder, or with another --out")
+    else:
+        why = f"cannot use the results store ({text})"
+    return UserError(why, file=path)
 
-    def __init__(self, folder: str | Path, *, create: bool = True) -> None:
+
+def reported(method):
+    """Turn an SQLite error inside a `Store` method into a `UserError` naming the store."""
+    @functools.wraps(method)
+    def wrapped(self, *args, **kwargs):
+        try:
+            return method(self, *args, **kwargs)
+        except (sqlite3.Error, pd.errors.DatabaseError, json.JSONDecodeError) as exc:
+            raise store_problem(self.path, exc) from None
+    return wrapped
+
+
+@functools.lru_cache(maxsize=1)
+def expected_columns() -> dict[str, tuple[str, ...]]:
+    """Table → columns, as `_SCHEMA` makes them."""
+    db = sqlite3.connect(":memory:")
+    db.executescript(_SCHEMA)
+    tables = [r[0] for r in db.execute("SELECT name FROM sqlite_master WHERE type='table' AND "
+                                       "name NOT LIKE 'sqlite_%'")]
+    out = {t: tuple(r[1] for r in db.execute(f"PRAGMA table_info({t})")) for t in tables}
+    db.close()
+    return out
+
+
+class Store:
+    """Open (or create) the store of a results folder.
+
+    ``read_only`` opens an existing store without any means to change it (SQLite's
+    ``mode=ro``, ``query_only``), for commands that only read (``report``, ``agree``,
+    `harness.load_results`): a colleague's folder on a read-only share can be read. Every
+    connection has ``trusted_schema`` off, so a crafted store cannot make a read call
+    functions through its views or triggers.
+    """
+
+    def __init__(self, folder: str | Path, *, read_only: bool = False) -> None:
         self.folder = Path(folder)
         self.path = self.folder / STORE_NAME
-        if not self.path.exists() and not create:
+        self.read_only = read_only
+        if not self.path.exists() and read_only:
             raise UserError(f"no results store in {self.folder} (expected {STORE_NAME}); run a "
                             "suite first with 'woodlot run SUITE'")
-        if create:
-            self.folder.mkdir(parents=True, exist_ok=True)
+        if self.path.exists() and not self.path.is_file():
+            raise UserError(f"{self.path} is a folder, not a results store")
+        if not read_only:
+            try:
+                self.folder.mkdir(parents=True, exist_ok=True)
+            except OSError as exc:
+                raise UserError(f"cannot create the results folder ({exc.strerror or exc})",
+                                file=self.folder) from None
+        self.db = None
         try:
-            self.db = sqlite3.connect(self.path, timeout=30, isolation_level=None)
-            self.db.execute("PRAGMA journal_mode=WAL")
-            self.db.execute("PRAGMA synchronous=NORMAL")
+            self.db = self._connect()
             found = self._schema()
             if found is not None and found != SCHEMA_VERSION:
                 raise UserError(f"{self.path} was written by another woodlot version (store "
                                 f"schema {found}; this one reads {SCHEMA_VERSION}); its cells "
                                 "cannot be reused: run with --fresh, or choose another --out")
-            self.db.executescript(_SCHEMA)
-            if found is None:
-                self.db.execute("INSERT INTO meta VALUES ('schema', ?)", (str(SCHEMA_VERSION),))
+            if not read_only:
+                self._create()
+            self._check_columns()
         except sqlite3.DatabaseError as exc:
-            raise UserError(f"{self.path} is not a woodlot results store ({exc})") from None
+            self.close()
+            if "not a database" in str(exc):
+                raise UserError(f"{self.path} is not a woodlot results store ({exc})") from None
+            raise store_problem(self.path, exc) from None
+        except BaseException:
+            self.close()
+            raise
+
+    def _connect(self) -> sqlite3.Connection:
+        if not self.read_only:
+            db = sqlite3.connect(self.path, timeout=30, isolation_level=None)
+            db.execute("PRAGMA trusted_schema=OFF")
+            db.execute("PRAGMA journal_mode=WAL")
+            db.execute("PRAGMA synchronous=NORMAL")
+            return db
+        uri = self.path.resolve().as_uri()
+        options = ["mode=ro&immutable=1"]
+        if Path(f"{self.path}-wal").exists() or running_elsewhere(self.folder) is not None:
+            # A run is writing, or one that was killed left committed cells in the write-ahead
+            # log: read through SQLite's locks and the log (it makes its shared-memory file if
+            # need be). Otherwise the file holds everything and nobody writes it (runs hold
+            # the folder's lock), so it is read as it is and nothing is created beside it.
+            options.insert(0, "mode=ro")
+        error: sqlite3.OperationalError | None = None
+        for option in options:
+            db = sqlite3.connect(f"{uri}?{option}", uri=True, timeout=30, isolation_level=None)
+            try:
+                db.execute("PRAGMA trusted_schema=OFF")
+                db.execute("PRAGMA query_only=ON")
+                db.execute("SELECT COUNT(*) FROM sqlite_master").fetchone()
+                return db
+            except sqlite3.OperationalError as exc:  # a read-only folder: no shared memory
+                db.close()
+                if "unable to open" not in str(exc) and "readonly" not in str(exc):
+                    raise
+                error = exc
+        raise error
+
+    def _create(self) -> None:
+        """The tables, all or none (one transaction: a disk that fills up half-way leaves
+        the file as it was)."""
+        try:
+            self.db.executescript(f"BEGIN IMMEDIATE;\n{_SCHEMA}\nINSERT OR IGNORE INTO meta "
+                                  f"VALUES ('schema', '{SCHEMA_VERSION}');\nCOMMIT;")
+        except sqlite3.Error:
+            if self.db.in_transaction:
+                self.db.execute("ROLLBACK")
+            raise
 
     def _schema(self) -> int | None:
         """The schema version the store was written with (None for a new, empty file)."""
-        has_meta = self.db.execute("SELECT 1 FROM sqlite_master WHERE type='table' AND "
-                                   "name='meta'").fetchone()
-        if not has_meta:
+        tables = {r[0] for r in self.db.execute("SELECT name FROM sqlite_master WHERE "
+                                                 "type='table'")}
+        if "meta" not in tables:
+            if tables or self.read_only:
+                raise UserError(f"{self.path} is not a woodlot results store (it has no table "
+                                "'meta')")
             return None
         found = self.db.execute("SELECT value FROM meta WHERE key='schema'").fetchone()
-        return int(found[0]) if found else None
+        try:
+            return int(found[0]) if found else None
+        except (TypeError, ValueError):
+            raise UserError(f"{self.path} is not a woodlot results store (schema "
+                            f"{found[0]!r})") from None
+
+    def _check_columns(self) -> None:
+        for table, columns in expected_columns().items():
+            found = {r[1] for r in self.db.execute(f"PRAGMA table_info({table})")}
+            missing = [c for c in columns if c not in found]
+            if missing:
+                what = f"has no table '{table}'" if not found else \
+                    f"table '{table}' lacks column{'s' if len(missing) > 1 else ''} " \
+                    f"{', '.join(missing)}"
+                raise UserError(f"the store is damaged or was changed by another program: it "
+                                f"{what}; run the suite again with --fresh or another --out",
+                                file=self.path)
 
     def close(self) -> None:
-        self.db.close()
+        if self.db is not None:
+            self.db.close()
+            self.db = None
 
     def __enter__(self) -> "Store":
         return self
@@ -110,6 +237,7 @@ class Store:
         self.close()
 
     # ------------------------------------------------------------------ runs and plan
+    @reported
     def start_run(self, suite_name: str, suite_text: str, command: str,
                   provenance: dict[str, Any]) -> int:
         cur = self.db.execute(
@@ -118,6 +246,7 @@ class Store:
             (time.time(), suite_name, suite_text, command, json.dumps(provenance)))
         return int(cur.lastrowid)
 
+    @reported
     def finish_run(self, run: int, state: str, provenance: dict[str, Any] | None = None) -> None:
         if provenance is not None:
             self.db.execute("UPDATE runs SET finished=?, state=?, provenance=? WHERE run=?",
@@ -126,6 +255,18 @@ class Store:
             self.db.execute("UPDATE runs SET finished=?, state=? WHERE run=?",
                             (time.time(), state, run))
 
+    @reported
+    def mark_killed(self) -> list[dict[str, Any]]:
+        """Mark as killed every run still marked running; call it only while holding the
+        folder's lock (then no process of those runs is alive). Returns those runs."""
+        rows = self.db.execute("SELECT run, started, provenance FROM runs WHERE "
+                               "state='running'").fetchall()
+        if rows:
+            self.db.execute("UPDATE runs SET state='killed' WHERE state='running'")
+        return [{"run": r, "started": t, "provenance": json.loads(p or "{}")}
+                for r, t, p in rows]
+
+    @reported
     def last_run(self) -> dict[str, Any] | None:
         row = self.db.execute("SELECT run, started, finished, suite, suite_text, command, "
                               "provenance, state FROM runs ORDER BY run DESC LIMIT 1").fetchone()
@@ -137,18 +278,21 @@ class Store:
         out["provenance"] = json.loads(out["provenance"] or "{}")
         return out
 
+    @reported
     def set_plan(self, keys: Iterable[str]) -> None:
         with self.db:
             self.db.execute("BEGIN")
             self.db.execute("DELETE FROM plan")
             self.db.executemany("INSERT OR IGNORE INTO plan VALUES (?)", ((k,) for k in keys))
 
+    @reported
     def record_datasets(self, summaries: Iterable[tuple[str, str, dict]]) -> None:
         with self.db:
             self.db.execute("BEGIN")
             self.db.executemany("INSERT OR REPLACE INTO datasets VALUES (?, ?, ?)",
                                 ((fp, name, json.dumps(s)) for fp, name, s in summaries))
 
+    @reported
     def known_fingerprints(self) -> dict[str, set[str]]:
         """Dataset name → fingerprints that have stored cells."""
         out: dict[str, set[str]] = {}
@@ -157,10 +301,12 @@ class Store:
         return out
 
     # ------------------------------------------------------------------ cells
+    @reported
     def finished_keys(self, *, include_failed: bool = True) -> set[str]:
         sql = "SELECT key FROM cells" + ("" if include_failed else " WHERE status='ok'")
         return {r[0] for r in self.db.execute(sql)}
 
+    @reported
     def put(self, row: dict[str, Any], run: int) -> None:
         """Write one finished cell in its own transaction."""
         values = dict(row)
@@ -175,6 +321,7 @@ class Store:
             self.db.execute(f"INSERT OR REPLACE INTO cells ({', '.join(_CELL_COLUMNS)}) "
                             f"VALUES ({', '.join('?' * len(_CELL_COLUMNS))})", params)
 
+    @reported
     def set_speedup_plan(self, keys: Iterable[str]) -> None:
         """The speedup points the latest speedup run wanted (tables show these, and only these)."""
         with self.db:
@@ -183,12 +330,14 @@ class Store:
             self.db.executemany("INSERT OR IGNORE INTO speedup_plan VALUES (?)",
                                 ((k,) for k in keys))
 
+    @reported
     def speedup_keys(self, *, include_failed: bool = True) -> set[str]:
         sql = "SELECT DISTINCT key FROM speedup WHERE key IS NOT NULL"
         if not include_failed:
             sql += " AND status='ok'"
         return {r[0] for r in self.db.execute(sql)}
 
+    @reported
     def put_speedup(self, rows: Iterable[dict[str, Any]], run: int) -> None:
         """Write the rows of one speedup point (one per repeat) in one transaction."""
         cols = _SPEEDUP_COLUMNS
@@ -201,6 +350,7 @@ class Store:
                 self.db.execute(f"INSERT INTO speedup ({', '.join(cols)}) VALUES "
                                 f"({', '.join('?' * len(cols))})", [v.get(c) for c in cols])
 
+    @reported
     def cells_frame(self, *, plan_only: bool = True) -> pd.DataFrame:
         """One row per cell; one column per metric named after its scorer."""
         sql = "SELECT * FROM cells"
@@ -213,6 +363,7 @@ class Store:
         frame = frame.drop(columns=["scores"])
         return pd.concat([frame, metrics], axis=1)
 
+    @reported
     def speedup_frame(self) -> pd.DataFrame:
         """Rows of the speedup points of the latest speedup plan, each point's latest measurement
         (a point measured again replaces the earlier one)."""
@@ -223,6 +374,7 @@ class Store:
             "WHERE key IN (SELECT key FROM speedup_plan) GROUP BY key) latest "
             "ON s.key = latest.key AND s.run = latest.run ORDER BY s.id", self.db)
 
+    @reported
     def run_provenance(self, runs: Iterable[int]) -> dict[int, dict[str, Any]]:
         """Run number → its provenance, for the given runs."""
         out = {}
@@ -232,6 +384,7 @@ class Store:
                 out[run] = json.loads(row[0] or "{}")
         return out
 
+    @reported
     def dataset_summaries(self) -> pd.DataFrame:
         rows = [json.loads(s) for (s,) in self.db.execute("SELECT summary FROM datasets")]
         return pd.DataFrame(rows)

@@ -145,7 +145,7 @@ def test_same_scores_as_local_processes(write_suite, tmp_path, capsys):
         # Same splits, seeds and code: identical to the last bit, curves included.
         assert remote[key]["scores"] == row["scores"]
         assert remote[key]["curve"] == row["curve"]
-    with Store(tmp_path / "dask", create=False) as store:
+    with Store(tmp_path / "dask", read_only=True) as store:
         prov = store.last_run()["provenance"]
     assert prov["executor"] == "dask"
     assert prov["dask"]["cluster"] == "local cluster started by woodlot"
@@ -182,7 +182,7 @@ def test_resume_after_interrupted_client(cluster, write_suite, tmp_path):
     assert len(after) == 36
     for key, row in before.items():
         assert after[key] == row  # same run, same finish time: untouched
-    with Store(out, create=False) as store:
+    with Store(out, read_only=True) as store:
         runs = store.db.execute("SELECT state, provenance FROM runs ORDER BY run").fetchall()
     assert [state for state, _ in runs] == ["interrupted", "finished"]
     assert json.loads(runs[1][1])["dask"]["scheduler"] == cluster.scheduler_address

@@ -12,7 +12,7 @@ from harness.store import Store
 
 
 def _load(folder: Path) -> tuple[pd.DataFrame, dict]:
-    with Store(folder, create=False) as store:
+    with Store(folder, read_only=True) as store:
         frame = store.cells_frame()
         run = store.last_run() or {}
     return frame, (run.get("provenance") or {})

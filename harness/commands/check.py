@@ -4,9 +4,10 @@ from __future__ import annotations
 
 import pandas as pd
 
+from harness.execution.memory import size_text
 from harness.plan import make_plan
 from harness.report.render import markdown_table
-from harness.suite import KFOLD, HOLDOUT, load_suite
+from harness.suite import AUTO, HOLDOUT, KFOLD, load_suite
 
 
 def check_suite(path) -> str:
@@ -23,8 +24,11 @@ def check_suite(path) -> str:
     else:
         how = "the datasets' published splits"
     limit = "none" if p.cell_timeout is None else f"{p.cell_timeout:g} s"
+    memory = {None: "none", AUTO: "auto (share of the free memory per worker)"}.get(
+        p.cell_memory) or size_text(p.cell_memory)
     lines = [f"suite '{suite.name}': {suite.description}".rstrip(": "),
-             f"protocol: {how}, seed {p.seed}; cell time limit {limit}", ""]
+             f"protocol: {how}, seed {p.seed}; cell time limit {limit}, memory limit {memory}",
+             ""]
     ds = pd.DataFrame([d.summary() for d in plan.datasets.values()])
     ds["metrics"] = [", ".join(p.metrics[t]) for t in ds["task"]]
     ds["splits"] = [len(plan.splits[n]) for n in ds["dataset"]]

@@ -32,13 +32,15 @@ from harness.commands.speedup import speedup_suite
 from harness.datacheck import ALONE, LEAK, DataCheck, check_dataset, check_file
 from harness.datasets import Dataset, load_dataset
 from harness.errors import UserError, closest
-from harness.files import write_text
+from harness.files import writable_folder, write_text
+from harness.folder_lock import holding
 from harness.names import is_name
 from harness.report import recommendation as words
 from harness.report.writer import write_report
 from harness.store import Store
-from harness.suite import DEFAULT_METRICS, KFOLD, load_suite, parse_duration
-from harness.work_units import OK
+from harness.suite import (DEFAULT_METRICS, KFOLD, check_seed, load_suite, metric_task,
+                           parse_duration)
+from harness.work_units import ERROR, OK
 
 # The catalogue as `choose` runs it: sizes a practitioner would start from.
 CANDIDATES: tuple[tuple[str, str, dict[str, Any]], ...] = (
@@ -172,6 +174,7 @@ def choose(data: str, *, target: str | None = None, budget: str | float = "10m",
                         "for tables of thousands of rows)", file="--budget")
     deadline = t0 + budget_s
     jobs = jobs or os.cpu_count() or 1
+    check_seed(seed, "--seed", None)
     ds, check, entry, folder = _data(
         data, target, task, suite, tuple(drop),
         lambda name: Path(out) if out is not None else Path("results") / f"choose-{name}")
@@ -180,7 +183,11 @@ def choose(data: str, *, target: str | None = None, budget: str | float = "10m",
         if metric not in get_scorer_names():
             raise UserError(f"'{metric}' is not a scikit-learn scorer name"
                             f"{closest(metric, get_scorer_names())}", file="--metric")
+        if metric_task(metric) != ds.task:
+            raise UserError(f"'{metric}' is a {metric_task(metric)} metric; this table's task is "
+                            f"{ds.task}", file="--metric")
         metrics = [metric] + [m for m in metrics if m != metric]
+    writable_folder(folder)
     for line in check.lines(lambda c: f"--drop {c}"):
         echo(line)
     unknown = [k for k in keep if k not in ds.X.columns]
@@ -188,7 +195,14 @@ def choose(data: str, *, target: str | None = None, budget: str | float = "10m",
         raise UserError(f"--keep names a column the table does not have: {unknown[0]}",
                         file=data, field=unknown[0])
     _refuse_leaks(check, tuple(keep), data)
-    folder.mkdir(parents=True, exist_ok=True)
+    with holding(folder, echo=echo):
+        return _choose(ds, check, entry, folder, metrics, jobs, seed, budget_s, t0, deadline,
+                       progress, echo)
+
+
+def _choose(ds: Dataset, check: DataCheck, entry: dict, folder: Path, metrics: list[str],
+            jobs: int, seed: int, budget_s: float, t0: float, deadline: float,
+            progress: bool | None, echo: Callable[[str], None]) -> Recommendation:
     suite_path = folder / SUITE_NAME
 
     def write_suite(repeats, strategies, speedup=None):
@@ -210,6 +224,10 @@ def choose(data: str, *, target: str | None = None, budget: str | float = "10m",
     left_out = [f"{r.strategy}: one fold did not finish within the pilot's share of the budget"
                 for r in pilot[pilot.status != OK].itertuples()]
     if ok.empty:
+        errors = pilot[pilot.status == ERROR]
+        if len(errors) == len(pilot):
+            raise UserError(f"not one strategy could fit this table (first error: "
+                            f"{errors.message.iloc[0]})", file=ds.source)
         raise UserError(f"a budget of {words.clock(budget_s)} is too small for this table: not "
                         "one strategy finished a single fold; give a larger --budget",
                         file="--budget")
@@ -257,7 +275,7 @@ def choose(data: str, *, target: str | None = None, budget: str | float = "10m",
 
 
 def _frame(folder: Path):
-    with Store(folder, create=False) as store:
+    with Store(folder, read_only=True) as store:
         return store.cells_frame()
 
 
@@ -276,7 +294,7 @@ def _cores(rec: Recommendation, costs: dict[str, float], deadline: float, suite_
     write_suite({"workers": [1, cores], "repeats": 1, "strategies": names})
     speedup_suite(suite_path, out=folder, progress=progress, echo=lambda s: None,
                   command="woodlot choose (cores)", write_outputs=False)
-    with Store(folder, create=False) as store:
+    with Store(folder, read_only=True) as store:
         points = store.speedup_frame()
     points = points[points.status == OK] if "status" in points else points
     out = []

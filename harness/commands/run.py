@@ -14,6 +14,7 @@ from harness.commands.speedup import SpeedupResult, measure_points
 from harness.errors import UserError
 from harness.execution.executor import Executor
 from harness.execution.local import LocalExecutor
+from harness.execution.memory import ENFORCED, cell_limit
 from harness.report.writer import Outputs, write_report
 from harness.work_units import OK, Cell
 
@@ -27,6 +28,7 @@ class RunResult:
     reused: int
     ran: int = 0
     failed: int = 0
+    succeeded: int = 0  # cells of the plan stored as ok (run now or before)
     stopped: bool = False  # the deadline came before every selected cell had run
     notes: list[str] = field(default_factory=list)
     speedup: SpeedupResult | None = None
@@ -62,7 +64,7 @@ def run_suite(path: str | Path, *, out: str | Path | None = None, jobs: int | No
               progress: bool | None = None, echo: Echo | None = None,
               command: str | None = None, write_outputs: bool = True,
               select: Callable[[Cell], bool] | None = None,
-              deadline: float | None = None) -> RunResult:
+              deadline: float | None = None, wait: bool = False) -> RunResult:
     """Run every cell of a suite not already in its results store, then write the outputs.
 
     Parameters
@@ -80,26 +82,35 @@ def run_suite(path: str | Path, *, out: str | Path | None = None, jobs: int | No
     select : run only the cells for which this returns True (the plan keeps them all).
     deadline : a ``time.perf_counter()`` value; no cell starts after it and running cells are
         stopped at it (recorded as timeouts). `RunResult.stopped` says whether it was reached.
+    wait : when another run is using the results folder, wait for it (default: stop with a
+        `UserError` naming it).
 
     Nothing is written before the suite and every dataset pass their checks.
     """
     echo = echo or stderr_echo
     executor = executor or LocalExecutor(jobs)
     with session(path, out=out, command=command, executor=executor, fresh=fresh,
-                 timing=TIMING, echo=echo) as s:
+                 timing=TIMING, wait=wait, echo=echo) as s:
         store, plan = s.store, s.plan
         result = RunResult(folder=s.folder, planned=len(plan.cells), reused=0, notes=s.notes)
         done = store.finished_keys(include_failed=not retry_failed)
         todo = [c for c in plan.cells if c.key not in done and (select is None or select(c))]
         result.reused = len(plan.cells) - len(todo)
         store.set_plan(c.key for c in plan.cells)
+        memory, s.provenance["cell_memory"] = None, "set by the Dask workers (--memory-limit)"
+        if isinstance(executor, LocalExecutor):
+            memory, s.provenance["cell_memory"] = cell_limit(s.suite.protocol.cell_memory,
+                                                             executor.jobs)
+            if todo and memory is not None and not ENFORCED:
+                echo("note: the cell memory limit is enforced on Linux only; on this system a "
+                     "cell may use all the memory there is")
         bar = Progress(len(todo), enabled=progress)
         try:
             timeout = s.suite.protocol.cell_timeout
             if deadline is not None:
                 left = max(0.5, deadline - time.perf_counter())
                 timeout = left if timeout is None else min(timeout, left)
-            for row in executor.run(todo, plan.by_fingerprint, timeout):
+            for row in executor.run(todo, plan.by_fingerprint, timeout, memory):
                 store.put(row, s.run)
                 result.ran += 1
                 result.failed += row["status"] != OK
@@ -111,6 +122,8 @@ def run_suite(path: str | Path, *, out: str | Path | None = None, jobs: int | No
         finally:
             bar.close()
         executor.close()  # nothing of the accuracy cells runs while speedup points are timed
+        ok = store.finished_keys(include_failed=False)
+        result.succeeded = sum(c.key in ok for c in plan.cells)
         if s.suite.speedup is not None:  # the speedup points run alone, after every cell
             result.speedup = measure_points(s, s.suite.speedup, retry_failed=retry_failed,
                                             progress=progress, echo=echo)

@@ -98,6 +98,7 @@ class PageContent:
     # woodlot choose: its sentences, then (title, items) such as warnings
     recommendation: list[str] = field(default_factory=list)
     recommendation_sections: list[tuple[str, list[str]]] = field(default_factory=list)
+    status: str = ""  # said at the top when the results are partial
 
 
 # ------------------------------------------------------------------ small helpers
@@ -309,6 +310,7 @@ def render(c: PageContent) -> str:
 <h1>woodlot report: {esc(c.suite)}</h1>
 <p class="meta">{c.n_datasets} datasets × {c.n_strategies} strategies, {c.n_cells} cells · written
 {esc(time.strftime("%Y-%m-%d %H:%M"))} · woodlot {esc(c.version)}</p>
+{_notes([c.status] if c.status else [])}
 <nav>{nav}</nav>
 {body}
 </main>

@@ -96,6 +96,12 @@ def esc(x) -> str:
     return html.escape("" if x is None else str(x), quote=True)
 
 
+def md_text(x) -> str:
+    """Running text for Markdown: angle brackets escaped, so a name can never become an HTML
+    tag in a Markdown viewer; the rest (``&`` in "Nadeau & Bengio") left readable."""
+    return ("" if x is None else str(x)).replace("<", "&lt;").replace(">", "&gt;")
+
+
 @dataclass
 class Table:
     """One table of the report.
@@ -168,15 +174,15 @@ def html_table(frame: pd.DataFrame, row_classes: list[str] | None = None) -> str
 
 def to_markdown(t: Table) -> str:
     """The whole table as a Markdown document: title, intro, one section per group."""
-    parts = [f"# {t.title}", ""]
+    parts = [f"# {md_text(t.title)}", ""]
     if t.intro:
-        parts += [t.intro, ""]
+        parts += [md_text(t.intro), ""]
     for g, rows, _ in t.groups():
         if g is not None:
-            parts += [f"## {t.group_titles.get(g, g)}", ""]
+            parts += [f"## {md_text(t.group_titles.get(g, g))}", ""]
         parts += [markdown_table(rows), ""]
     if t.footer:
-        parts += [t.footer, ""]
+        parts += [md_text(t.footer), ""]
     return "\n".join(parts)
 
 

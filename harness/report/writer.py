@@ -1,6 +1,8 @@
 """Writing a results folder's report from its store alone: ``tables/*.csv`` and ``*.md``,
-``plots/*.png``, ``provenance.json`` and ``report.html``. The only module of the report that
-writes files; every file is written through a temporary name (`harness.files`)."""
+``plots/*.png``, ``provenance.json`` and ``report.html``, into the folder or another one. The
+store is opened read-only. The only module of the report that writes files; every file is
+written through a temporary name (`harness.files`). A run still going in the folder, or one
+that ended without finishing, is said at the top of the page (the results are partial)."""
 
 from __future__ import annotations
 
@@ -17,11 +19,12 @@ from matplotlib.figure import Figure
 from harness.analysis.results import ok_cells, strategy_means
 from harness.analysis.speedup import summarize
 from harness.analysis.verdict import Verdict, verdict
-from harness.files import write_bytes, write_text
+from harness.files import writable_folder, write_bytes, write_text
+from harness.folder_lock import running_elsewhere
 from harness.report import plots, speedup_plots, tables, verdict_plots, words
 from harness.report.cd_diagram import cd_figure
 from harness.report.page import REPORT_NAME, PageContent, render
-from harness.report.render import Table, to_markdown
+from harness.report.render import Table, md_text, to_markdown
 from harness.store import Store
 from harness.suite import Equivalence
 
@@ -37,6 +40,7 @@ class Outputs:
 
     folder: Path
     files: list[Path] = field(default_factory=list)
+    status: str = ""  # when the results are partial: why
     verdict: Verdict | None = None        # when the store has accuracy cells
     speedup: pd.DataFrame | None = None   # one line per dataset × strategy, when it has speedup points
     tables: dict[str, Table] = field(default_factory=dict)
@@ -125,22 +129,44 @@ def _verdict_figures(v: Verdict) -> dict[str, Figure]:
     return figs
 
 
-def write_report(folder: str | Path, recommendation: list[str] | None = None,
+def run_status(folder: Path, run: dict | None, running: str | None) -> str:
+    """Why the folder's results are partial (``running``: who is still writing to it; or
+    the latest run ended without finishing), or ''."""
+    if running is not None:
+        return (f"a run is still writing to {folder} ({running}): these results are partial; "
+                "write the report again when it has finished")
+    state = (run or {}).get("state")
+    if state in (None, "finished"):
+        return ""
+    how = "was stopped" if state == "interrupted" else "ended without finishing (its process " \
+        "is gone)"
+    return (f"the latest run ({run['run']}) {how}: these results are partial; run the same "
+            "command again to complete them")
+
+
+def write_report(folder: str | Path, out: str | Path | None = None,
+                 recommendation: list[str] | None = None,
                  recommendation_sections: list[tuple[str, list[str]]] | None = None) -> Outputs:
     """Tables (CSV + Markdown), plots, provenance and report.html for the folder's latest
-    plan, from its store alone; `woodlot choose` adds its recommendation (sentences and
-    titled sections such as warnings) at the top of the page."""
+    plan, from its store alone (opened read-only), written into ``out`` (default: the
+    folder itself); `woodlot choose` adds its recommendation (sentences and titled sections
+    such as warnings) at the top of the page."""
     folder = Path(folder)
-    out = Outputs(folder)
-    with Store(folder, create=False) as store:
+    with Store(folder, read_only=True) as store:
         frame = store.cells_frame()
         run = store.last_run()
         datasets = store.dataset_summaries()
         points_frame = store.speedup_frame()
         speedup_runs = store.run_provenance(points_frame["run"]) if not points_frame.empty \
             else {}
+    running = running_elsewhere(folder)
+    if running is None and run is not None and run.get("state") == "running":
+        run = {**run, "state": "killed"}  # its process is gone: it holds no lock
+    status = run_status(folder, run, running)
+    target = writable_folder(out if out is not None else folder)
+    out = Outputs(target, status=status)
     provenance = (run or {}).get("provenance", {})
-    out.files.append(write_text(folder / "provenance.json", json.dumps(provenance, indent=2)))
+    out.files.append(write_text(target / "provenance.json", json.dumps(provenance, indent=2)))
     figures: dict[str, Figure] = {}
     found: list[Table] = []
     if not frame.empty:
@@ -157,9 +183,9 @@ def write_report(folder: str | Path, recommendation: list[str] | None = None,
             if v.tested:
                 found += [tables.tests(v), tables.pairs_across(v)]
         figures.update(_verdict_figures(v))
-        out.files.append(write_text(folder / SUMMARY_NAME, "# The short answer\n\n" + "".join(
-            f"{s}\n\n" for s in words.bottom_line(v)) + "## Details\n\n" + "".join(
-            f"- {s}\n" for s in words.details(v))))
+        out.files.append(write_text(target / SUMMARY_NAME, "# The short answer\n\n" + "".join(
+            f"{md_text(s)}\n\n" for s in words.bottom_line(v)) + "## Details\n\n" + "".join(
+            f"- {md_text(s)}\n" for s in words.details(v))))
         for name, fig in (("score_vs_fit_time", plots.score_vs_fit_time(
                               strategy_means(frame, v.primary))),
                           ("ensemble_size", plots.size_curves(ok_cells(frame), v.primary))):
@@ -178,14 +204,14 @@ def write_report(folder: str | Path, recommendation: list[str] | None = None,
                 figures[name] = fig
     for t in found:
         out.tables[t.name] = t
-        out.files.append(write_text(folder / "tables" / f"{t.name}.csv",
+        out.files.append(write_text(target / "tables" / f"{t.name}.csv",
                                     t.data.to_csv(index=False)))
-        out.files.append(write_text(folder / "tables" / f"{t.name}.md", to_markdown(t)))
+        out.files.append(write_text(target / "tables" / f"{t.name}.md", to_markdown(t)))
     images = {name: png(fig, dpi=150 if name in ("critical_difference",
                                                  "wilcoxon_holm_groups") else DPI)
               for name, fig in figures.items()}
     for name, data in images.items():
-        out.files.append(write_bytes(folder / "plots" / f"{name}.png", data))
+        out.files.append(write_bytes(target / "plots" / f"{name}.png", data))
     content = PageContent(
         suite=(run or {}).get("suite") or folder.name,
         version=provenance.get("libraries", {}).get("woodlot", ""), n_cells=len(frame),
@@ -197,6 +223,6 @@ def write_report(folder: str | Path, recommendation: list[str] | None = None,
         provenance=_provenance_rows(run, len(frame), folder),
         suite_text=(run or {}).get("suite_text") or "", has_speedup=not points_frame.empty,
         recommendation=recommendation or [],
-        recommendation_sections=recommendation_sections or [])
-    out.files.append(write_text(folder / REPORT_NAME, render(content)))
+        recommendation_sections=recommendation_sections or [], status=status)
+    out.files.append(write_text(target / REPORT_NAME, render(content)))
     return out
