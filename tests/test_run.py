@@ -113,6 +113,7 @@ def test_interrupted_run_resumes_keeping_finished_cells(write_suite, tmp_path, h
     _, err = proc.communicate(timeout=30)
     if how == signal.SIGINT:
         assert proc.returncode == 130 and "resume" in err
+        assert len(err.strip().splitlines()) == 1 and "Traceback" not in err, err
     kept = _stored(db)
     assert 4 <= kept < 2 * 3 * 12
     resumed = run_suite(path, out=out, jobs=2, progress=False)
