@@ -1,5 +1,6 @@
-"""Estimators that misbehave, for the fault tests: imported by path from suite files
-(``classifier = "tests.faulty_estimators:..."``) in worker processes.
+"""Estimators that misbehave, for the fault and executor tests: imported by path from suite
+files (``classifier = "tests.faulty_estimators:..."``) on the client and in worker processes
+(local ones, and the Dask workers, which the test cluster starts with the test's import path).
 
 Each wraps a decision tree so that, when it does not misbehave, it is an ordinary classifier.
 """
@@ -121,3 +122,17 @@ class Labelled(_Tree):
 
     def fit(self, X, y):
         return self._fit_tree(X, y)
+
+
+class ProcessKiller(_Tree):
+    """Appends its process id to ``log``, then ends the process at once (as the kernel's
+    out-of-memory killer would): every worker that tries this cell dies."""
+
+    def __init__(self, log: str = "", random_state=None) -> None:
+        self.log = log
+        self.random_state = random_state
+
+    def fit(self, X, y):
+        with Path(self.log).open("a") as f:
+            f.write(f"{os.getpid()}\n")
+        os._exit(9)

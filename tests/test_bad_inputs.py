@@ -176,65 +176,6 @@ CASES = {
                               ["s.toml", "not valid TOML"]),
     "unknown section": lambda t: (run(suite(t, also="[measure]\nmemory = true"), t),
                                   ["s.toml", "unknown section 'measure'"]),
-    "unknown protocol key": lambda t: (run(suite(t, protocol="seeds = 3"), t),
-                                       ["[protocol]", "field 'seeds'", "did you mean 'seed'"]),
-    "seed of the wrong type": lambda t: (run(suite(t, protocol='seed = "3"'), t),
-                                         ["[protocol]", "field 'seed'", "whole number"]),
-    "seed -1": lambda t: (run(suite(t, protocol="seed = -1"), t),
-                          ["[protocol]", "field 'seed'", "4294967295"]),
-    "seed 2**40": lambda t: (run(suite(t, protocol=f"seed = {2**40}"), t),
-                             ["[protocol]", "field 'seed'", "4294967295"]),
-    "r2 for classification": lambda t: (run(suite(t, protocol='metrics = { classification = '
-                                                  '["accuracy", "r2"] }'), t),
-                                        ["field 'metrics.classification'", "'r2'",
-                                         "regression metric"]),
-    "accuracy for regression": lambda t: (run(suite(t, protocol='metrics = { regression = '
-                                                    '["accuracy"] }'), t),
-                                          ["field 'metrics.regression'", "classification"]),
-    "unknown scorer": lambda t: (run(suite(t, protocol='metrics = { classification = '
-                                           '["acuracy"] }'), t),
-                                 ["field 'metrics.classification'", "did you mean 'accuracy'"]),
-    "cell_timeout \"0\"": lambda t: (run(suite(t, protocol='cell_timeout = "0"'), t),
-                                     ["field 'cell_timeout'", '"none"']),
-    "cell_timeout 0": lambda t: (run(suite(t, protocol="cell_timeout = 0"), t),
-                                 ["field 'cell_timeout'", '"none"']),
-    "cell_timeout text": lambda t: (run(suite(t, protocol='cell_timeout = "soon"'), t),
-                                    ["field 'cell_timeout'", "not a duration"]),
-    "cell_memory text": lambda t: (run(suite(t, protocol='cell_memory = "lots"'), t),
-                                   ["field 'cell_memory'", "not a size"]),
-    "cell_memory tiny": lambda t: (run(suite(t, protocol='cell_memory = "1MB"'), t),
-                                   ["field 'cell_memory'", "too small"]),
-    "curve_points 0": lambda t: (run(suite(t, also="[also_measure]\ncurve_points = 0"), t),
-                                 ["[also_measure]", "field 'curve_points'", "between 2 and 1000"]),
-    "curve_points -3": lambda t: (run(suite(t, also="[also_measure]\ncurve_points = -3"), t),
-                                  ["[also_measure]", "field 'curve_points'"]),
-    "unknown method": lambda t: (run(suite(t, strategies='[[strategy]]\nname = "f"\nmethod = '
-                                           '"random-forrest"'), t),
-                                 ["strategy 'f'", "field 'method'", "random-forest"]),
-    "unknown parameter": lambda t: (run(suite(t, strategies='[[strategy]]\nname = "f"\nmethod'
-                                              ' = "random-forest"\nparams = { n_trees = 3 }'), t),
-                                    ["strategy 'f'", "field 'params.n_trees'"]),
-    "refused parameter value": lambda t: (run(suite(t, strategies='[[strategy]]\nname = "f"\n'
-                                                    'method = "random-forest"\nparams = '
-                                                    '{ max_depth = -3 }'), t),
-                                          ["strategy 'f'", "field 'params'", "max_depth"]),
-    "estimator not importable": lambda t: (run(suite(t, strategies='[[strategy]]\nname = "m"\n'
-                                                     'classifier = "nowhere.models:Thing"'), t),
-                                           ["strategy 'm'", "field 'classifier'", "nowhere"]),
-    "repeated dataset name": lambda t: (run(suite(t, datasets='[[dataset]]\nname = "wine"\n'
-                                                  'from = "sklearn"\nload = "load_iris"'), t),
-                                        ["dataset 'wine' (entry 2)", "field 'name'"]),
-    "unknown source": lambda t: (run(suite(t, datasets='[[dataset]]\nname = "x"\nfrom = "web"'),
-                                     t),
-                                 ["dataset 'x'", "field 'from'"]),
-    "unknown generator": lambda t: (run(suite(t, datasets='[[dataset]]\nname = "x"\nfrom = '
-                                              '"generator"\nmake = "make_cirles"'), t),
-                                    ["dataset 'x'", "field 'make'"]),
-    "speedup worker count 0": lambda t: (run(suite(t, speedup="[speedup]\nworkers = [0, 2]"), t),
-                                         ["[speedup]", "field 'workers'"]),
-    "speedup unknown dataset": lambda t: (run(suite(t, speedup='[speedup]\ndatasets = ["wnie"]'),
-                                              t),
-                                          ["[speedup]", "field 'datasets'", "did you mean"]),
     # ---- the data
     "data path is a folder": lambda t: ((t / "d.csv").mkdir()
                                         or (run(suite(t, datasets=csv_entry("d.csv")), t),
@@ -301,6 +242,61 @@ CASES = {
                                           [str(t / "out"), "a file"]),
 }
 
+# A suite with one part added (a keyword of `suite`: its text) and what the message must name.
+SUITE_CASES = {
+    "unknown protocol key": ("protocol", "seeds = 3",
+                             ["[protocol]", "field 'seeds'", "did you mean 'seed'"]),
+    "seed of the wrong type": ("protocol", 'seed = "3"',
+                               ["[protocol]", "field 'seed'", "whole number"]),
+    "seed -1": ("protocol", "seed = -1", ["[protocol]", "field 'seed'", "4294967295"]),
+    "seed 2**40": ("protocol", f"seed = {2**40}", ["[protocol]", "field 'seed'", "4294967295"]),
+    "r2 for classification": ("protocol", 'metrics = { classification = ["accuracy", "r2"] }',
+                              ["field 'metrics.classification'", "'r2'", "regression metric"]),
+    "accuracy for regression": ("protocol", 'metrics = { regression = ["accuracy"] }',
+                                ["field 'metrics.regression'", "classification"]),
+    "unknown scorer": ("protocol", 'metrics = { classification = ["acuracy"] }',
+                       ["field 'metrics.classification'", "did you mean 'accuracy'"]),
+    "cell_timeout \"0\"": ("protocol", 'cell_timeout = "0"', ["field 'cell_timeout'", '"none"']),
+    "cell_timeout 0": ("protocol", "cell_timeout = 0", ["field 'cell_timeout'", '"none"']),
+    "cell_timeout text": ("protocol", 'cell_timeout = "soon"',
+                          ["field 'cell_timeout'", "not a duration"]),
+    "cell_memory text": ("protocol", 'cell_memory = "lots"', ["field 'cell_memory'",
+                                                              "not a size"]),
+    "cell_memory tiny": ("protocol", 'cell_memory = "1MB"', ["field 'cell_memory'", "too small"]),
+    "curve_points 0": ("also", "[also_measure]\ncurve_points = 0",
+                       ["[also_measure]", "field 'curve_points'", "between 2 and 1000"]),
+    "curve_points -3": ("also", "[also_measure]\ncurve_points = -3",
+                        ["[also_measure]", "field 'curve_points'"]),
+    "unknown method": ("strategies", '[[strategy]]\nname = "f"\nmethod = "random-forrest"',
+                       ["strategy 'f'", "field 'method'", "random-forest"]),
+    "unknown parameter": ("strategies", '[[strategy]]\nname = "f"\nmethod = "random-forest"\n'
+                          "params = { n_trees = 3 }", ["strategy 'f'", "field 'params.n_trees'"]),
+    "refused parameter value": ("strategies", '[[strategy]]\nname = "f"\nmethod = '
+                                '"random-forest"\nparams = { max_depth = -3 }',
+                                ["strategy 'f'", "field 'params'", "max_depth"]),
+    "estimator not importable": ("strategies", '[[strategy]]\nname = "m"\nclassifier = '
+                                 '"nowhere.models:Thing"',
+                                 ["strategy 'm'", "field 'classifier'", "nowhere"]),
+    "repeated dataset name": ("datasets", '[[dataset]]\nname = "wine"\nfrom = "sklearn"\n'
+                              'load = "load_iris"', ["dataset 'wine' (entry 2)", "field 'name'"]),
+    "unknown source": ("datasets", '[[dataset]]\nname = "x"\nfrom = "web"',
+                       ["dataset 'x'", "field 'from'"]),
+    "unknown generator": ("datasets", '[[dataset]]\nname = "x"\nfrom = "generator"\nmake = '
+                          '"make_cirles"', ["dataset 'x'", "field 'make'"]),
+    "speedup worker count 0": ("speedup", "[speedup]\nworkers = [0, 2]",
+                               ["[speedup]", "field 'workers'"]),
+    "speedup unknown dataset": ("speedup", '[speedup]\ndatasets = ["wnie"]',
+                                ["[speedup]", "field 'datasets'", "did you mean"]),
+}
+
+
+def suite_case(part: str, text: str, fragments: list[str]):
+    return lambda t: (run(suite(t, **{part: text}), t), ["s.toml", *fragments])
+
+
+assert not set(SUITE_CASES) & set(CASES)
+CASES.update({name: suite_case(*case) for name, case in SUITE_CASES.items()})
+
 STORE_CASES = {
     "store with damaged pages": damaged_pages,
     "store without a column": missing_column,
@@ -333,6 +329,7 @@ def assert_refused(args, expected, tmp: Path, capsys) -> None:
 
 
 def test_there_are_at_least_forty_cases():
+    assert not set(CASES) & set(STORE_CASES)
     assert len(CASES) + len(STORE_CASES) >= 40
 
 

@@ -121,7 +121,7 @@ load = "load_wine"
 
 [[strategy]]
 name = "slow"
-classifier = "tests.dask_estimators:SlowTree"
+classifier = "tests.faulty_estimators:Slow"
 params = {{ seconds = {seconds} }}
 """
 
@@ -237,7 +237,7 @@ def test_cell_that_kills_every_worker_becomes_an_error_row(cluster, write_suite,
 
         [[strategy]]
         name = "deadly"
-        classifier = "tests.dask_estimators:ProcessKiller"
+        classifier = "tests.faulty_estimators:ProcessKiller"
         params = {{ log = "{log}" }}
         """)
     rec = Recorder(DaskExecutor(scheduler=cluster.scheduler_address))

@@ -79,6 +79,16 @@ def wait_for_cells(db: Path, n: int, proc: subprocess.Popen, seconds: float = 12
     assert proc.poll() is None, "the run ended before it could be disturbed"
 
 
+def started(tmp: Path, body: str, cells: int, *extra: str) -> tuple[subprocess.Popen, Path]:
+    """A run of ``body`` into ``tmp/out`` in a process of its own, once it has stored
+    ``cells`` cells."""
+    out = tmp / "out"
+    proc = woodlot("run", str(write(tmp, body)), "--out", str(out), "--jobs", "2", "--quiet",
+                   *extra)
+    wait_for_cells(out / "cells.sqlite", cells, proc)
+    return proc, out
+
+
 def integrity(db: Path) -> str:
     with sqlite3.connect(db) as con:
         return con.execute("PRAGMA integrity_check").fetchone()[0]
@@ -317,10 +327,7 @@ SLOW = SLOW.replace("repeats = 1", "repeats = 6")
 
 @pytest.mark.slow
 def test_sigterm_stops_the_run_like_ctrl_c_and_leaves_no_process(tmp_path):
-    path = write(tmp_path, SLOW)
-    out = tmp_path / "out"
-    proc = woodlot("run", str(path), "--out", str(out), "--jobs", "2", "--quiet")
-    wait_for_cells(out / "cells.sqlite", 2, proc)
+    proc, out = started(tmp_path, SLOW, 2)
     children = descendants(proc.pid)
     assert len(children) >= 3  # the forkserver and two workers at least
     proc.send_signal(signal.SIGTERM)
@@ -385,10 +392,8 @@ def test_sigkill_soak_loses_duplicates_and_changes_nothing(tmp_path):
 
 @pytest.mark.slow
 def test_a_second_run_in_the_same_folder_is_refused_or_waits(tmp_path):
-    path = write(tmp_path, SLOW)
-    out = tmp_path / "out"
-    first = woodlot("run", str(path), "--out", str(out), "--jobs", "2", "--quiet")
-    wait_for_cells(out / "cells.sqlite", 1, first)
+    first, out = started(tmp_path, SLOW, 1)
+    path = tmp_path / "s.toml"
     second = woodlot("run", str(path), "--out", str(out), "--jobs", "2", "--quiet")
     third = woodlot("run", str(path), "--out", str(out), "--jobs", "2", "--quiet",
                     "--wait-for-folder")
@@ -471,6 +476,9 @@ def test_a_read_only_results_folder_is_reported_and_agreed(tmp_path, write_suite
         assert main(["report", str(theirs)]) == 2
         err = capsys.readouterr().err.strip()
         assert len(err.splitlines()) == 1 and "--out" in err and "read-only" in err
+        assert main(["run", str(path), "--out", str(theirs / "again"), "--quiet"]) == 2
+        err = capsys.readouterr().err.strip()
+        assert len(err.splitlines()) == 1 and "cannot write into" in err
         assert {p: p.stat().st_mtime_ns for p in files} == before
         assert sorted(theirs.iterdir()) == sorted(p for p in files if p.parent == theirs)
     finally:
