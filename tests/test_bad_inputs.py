@@ -14,7 +14,6 @@ import textwrap
 from pathlib import Path
 
 import numpy as np
-import pandas as pd
 import pytest
 
 from harness import run_suite

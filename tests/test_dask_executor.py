@@ -68,8 +68,8 @@ class Recorder(Executor):
     def close(self) -> None:
         self.inner.close()
 
-    def run(self, cells, datasets, timeout):
-        rows = self.inner.run(cells, datasets, timeout)
+    def run(self, cells, datasets, timeout, memory=None):
+        rows = self.inner.run(cells, datasets, timeout, memory)
         try:
             for row in rows:
                 self.keys.append(row["key"])

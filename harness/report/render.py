@@ -8,6 +8,7 @@ go to ``tables/*.csv``.
 from __future__ import annotations
 
 import html
+import re
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -97,9 +98,10 @@ def esc(x) -> str:
 
 
 def md_text(x) -> str:
-    """Running text for Markdown: angle brackets escaped, so a name can never become an HTML
-    tag in a Markdown viewer; the rest (``&`` in "Nadeau & Bengio") left readable."""
-    return ("" if x is None else str(x)).replace("<", "&lt;").replace(">", "&gt;")
+    """Running text for Markdown: a ``<`` that could open an HTML tag (followed by a letter,
+    ``/``, ``!`` or ``?``) is escaped, so a name can never become markup in a Markdown viewer;
+    the rest ("p < 0.001", "Nadeau & Bengio") stays as written."""
+    return re.sub(r"<(?=[A-Za-z/!?])", "&lt;", "" if x is None else str(x))
 
 
 @dataclass
