@@ -1,5 +1,5 @@
-"""What woodlot knows about a scikit-learn scorer beyond its value: whether its differences mean
-the same on every dataset (a bounded, unit-free score), the range its values can take, and the
+"""What woodlot knows about a scikit-learn scorer beyond its value: the task it scores, whether
+its differences mean the same on every dataset (a bounded, unit-free score), the range its values can take, and the
 default width of its region of practical equivalence (the smallest difference that matters).
 
 Scorer values are stored as scikit-learn returns them: higher is better, errors negated
@@ -8,6 +8,8 @@ Scorer values are stored as scikit-learn returns them: higher is better, errors 
 from __future__ import annotations
 
 from dataclasses import dataclass
+
+from sklearn.metrics import get_scorer
 
 # Scorers whose values have no unit and the same range on every dataset (proportions,
 # correlations, r2): differences of these can be compared across datasets as they are.
@@ -21,6 +23,15 @@ _PROPORTIONS = ("accuracy", "balanced_accuracy", "top_k_accuracy", "roc_auc",
 
 DEFAULT_ABSOLUTE = 0.01   # bounded scores: one percentage point of accuracy (common practice)
 DEFAULT_RELATIVE = 0.01   # errors and other unbounded scores: 1 % of the best strategy's value
+
+
+def metric_task(metric: str) -> str:
+    """The task a scikit-learn scorer is for: ``regression`` for the regression metrics,
+    ``classification`` for every other (classification, ranking and label-agreement) one.
+    Read from the module of the scorer's metric function (``sklearn.metrics._regression``)."""
+    func = getattr(get_scorer(metric), "_score_func", None)
+    return "regression" if getattr(func, "__module__", "").endswith("._regression") \
+        else "classification"
 
 
 def _is(metric: str, names: tuple[str, ...]) -> bool:

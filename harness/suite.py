@@ -13,13 +13,13 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
-from sklearn.metrics import get_scorer, get_scorer_names
+from sklearn.metrics import get_scorer_names
 
 from harness.datasets import SOURCES, DatasetSpec
 from harness.datasets.openml import expand_benchmark_suite
 from harness.errors import UserError, closest
 from harness.names import RULE, is_name
-from harness.scorers import Margin, default_margin
+from harness.scorers import Margin, default_margin, metric_task
 from harness.strategies import Strategy, resolve
 
 KFOLD, HOLDOUT, PUBLISHED = "k-fold", "holdout", "published"
@@ -185,15 +185,6 @@ def check_seed(value: int, where: str, key: str | None = "seed") -> int:
         raise UserError(f"must be between 0 and {SEED_MAX} (2**32 - 1), got {value}",
                         file=where, field=key)
     return value
-
-
-def metric_task(metric: str) -> str:
-    """The task a scikit-learn scorer is for: ``regression`` for the regression metrics,
-    ``classification`` for every other (classification, ranking and label-agreement) one.
-    Read from the module of the scorer's metric function (``sklearn.metrics._regression``)."""
-    func = getattr(get_scorer(metric), "_score_func", None)
-    return "regression" if getattr(func, "__module__", "").endswith("._regression") \
-        else "classification"
 
 
 def _check_table(table: Any, spec: dict[str, tuple], where: str, section: str) -> dict[str, Any]:

@@ -24,12 +24,13 @@ OTHER_LIBRARIES = ("woodlot", "openml", "threadpoolctl", "matplotlib", "dask", "
 
 # woodlot's own modules (paths inside the package) whose code changes the numbers stored for
 # a unit of work: the in-fold preprocessing, the fit / predict / score / ensemble-size curve of
-# a cell, and the measurements. What the key already hashes directly is left out: the
+# a cell, the measurements and the per-row test evidence. What the key already hashes directly is left out: the
 # resolved estimator and pipeline (`harness.strategies`, `harness.preprocess` build them, and
 # their every parameter is in the key), the data content (`harness.datasets`: its
 # fingerprint) and the split indices (`harness.splits`). A speedup point adds the module that
 # times it. `code_version` hashes these files, so the key changes with the code by itself.
-CELL_CODE = ("preprocess.py", "execution/run_cell.py", "execution/measure.py")
+CELL_CODE = ("preprocess.py", "execution/run_cell.py", "execution/measure.py",
+             "row_evidence.py")
 SPEEDUP_CODE = (*CELL_CODE, "execution/speedup_point.py")
 CODE_KEY = "woodlot code"
 _PACKAGE = Path(__file__).resolve().parent

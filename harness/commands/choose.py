@@ -38,8 +38,8 @@ from harness.names import is_name
 from harness.report import recommendation as words
 from harness.report.writer import write_report
 from harness.store import Store
-from harness.suite import (DEFAULT_METRICS, KFOLD, check_seed, load_suite, metric_task,
-                           parse_duration)
+from harness.scorers import metric_task
+from harness.suite import DEFAULT_METRICS, KFOLD, check_seed, load_suite, parse_duration
 from harness.work_units import ERROR, OK
 
 # The catalogue as `choose` runs it: sizes a practitioner would start from.

@@ -144,9 +144,9 @@ def run_status(folder: Path, run: dict | None, running: str | None) -> str:
             "command again to complete them")
 
 
-def write_report(folder: str | Path, out: str | Path | None = None,
-                 recommendation: list[str] | None = None,
-                 recommendation_sections: list[tuple[str, list[str]]] | None = None) -> Outputs:
+def write_report(folder: str | Path, recommendation: list[str] | None = None,
+                 recommendation_sections: list[tuple[str, list[str]]] | None = None, *,
+                 out: str | Path | None = None) -> Outputs:
     """Tables (CSV + Markdown), plots, provenance and report.html for the folder's latest
     plan, from its store alone (opened read-only), written into ``out`` (default: the
     folder itself); `woodlot choose` adds its recommendation (sentences and titled sections
