@@ -50,6 +50,17 @@ def _outcome(outputs) -> None:
 
     if outputs is None:
         return
+    if outputs.unchanged:
+        from harness.report.outputs import SUMMARY_NAME
+
+        summary = outputs.folder / SUMMARY_NAME
+        print("\nThe store has not changed since its tables, plots and report were written; "
+              "they are left as they are (woodlot report writes them again).")
+        if summary.is_file():
+            print(summary.read_text(encoding="utf-8").replace("# The short answer",
+                                                              "In short (details in "
+                                                              "report.html):"))
+        return
     if "ranks" in outputs.tables:
         print("\n" + outputs.tables["ranks"].title + "\n"
               + markdown_table(outputs.tables["ranks"].display))

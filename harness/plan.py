@@ -9,7 +9,7 @@ from dataclasses import dataclass
 from harness import provenance
 from harness.datasets import Dataset, Split, load_dataset
 from harness.preprocess import pipeline_text
-from harness.splits import make_splits
+from harness.splits import make_splits, split_id
 from harness.strategies import Strategy
 from harness.suite import SpeedupSettings, Suite
 from harness.versions import (CELL_CODE, SPEEDUP_CODE, estimator_distribution,
@@ -77,6 +77,13 @@ def make_plan(suite: Suite, datasets: dict[str, Dataset] | None = None) -> Plan:
                                   train=s.train, test=s.test, metrics=metrics, seed=p.seed,
                                   row_evidence=bool(one_split), **extras))
     return Plan(suite, datasets, all_splits, cells, skipped)
+
+
+def cell_splits(plan: Plan) -> list[tuple[str, str]]:
+    """(cell key, split id) for every cell of the plan: which rows trained and tested it."""
+    ids = {(name, s.repeat, s.fold): split_id(s.train, s.test)
+           for name, splits in plan.splits.items() for s in splits}
+    return [(c.key, ids[(c.dataset, c.repeat, c.fold)]) for c in plan.cells]
 
 
 def usable_cores() -> int:

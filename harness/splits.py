@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import hashlib
+
 import numpy as np
 from sklearn.model_selection import (RepeatedKFold, RepeatedStratifiedKFold, ShuffleSplit,
                                      StratifiedShuffleSplit)
@@ -9,6 +11,14 @@ from sklearn.model_selection import (RepeatedKFold, RepeatedStratifiedKFold, Shu
 from harness.datasets import CLASSIFICATION, Dataset, Split
 from harness.errors import UserError
 from harness.suite import KFOLD, PUBLISHED, Protocol
+
+
+def split_id(train: np.ndarray, test: np.ndarray) -> str:
+    """A short hash of which rows train and which rows test: equal ids, the same split."""
+    h = hashlib.sha256(np.asarray(train, dtype=np.int64).tobytes())
+    h.update(b"|")
+    h.update(np.asarray(test, dtype=np.int64).tobytes())
+    return h.hexdigest()[:16]
 
 
 def splitter(protocol: Protocol, task: str, n_rows: int):

@@ -5,6 +5,10 @@
 - Cells are keyed by `harness.work_units.unit_key`; a run skips keys already stored.
 - Each run records its plan (the keys it wanted), so tables and plots are regenerated from
   the store alone and show the latest plan, not cells of datasets that have since changed.
+- Every cell keeps the run that computed it, and every run its own provenance.
+- A change counter (``meta`` row ``changes``, kept by triggers) moves with every write the
+  report reads, so outputs written from one state of the store are known to be up to date.
+- The write-ahead log is checkpointed as cells arrive, so it stays small during a long run.
 """
 
 from __future__ import annotations
@@ -13,9 +17,11 @@ import functools
 import json
 import sqlite3
 import time
+from dataclasses import dataclass
 from pathlib import Path
 from typing import Any, Iterable
 
+import numpy as np
 import pandas as pd
 
 from harness.errors import UserError
@@ -48,6 +54,28 @@ CREATE TABLE IF NOT EXISTS speedup (
 CREATE TABLE IF NOT EXISTS speedup_plan (key TEXT PRIMARY KEY);
 """
 
+# Tables whose every insert, update and delete moves the change counter; the runs table moves
+# it only for runs that stored cells or speedup points (a rerun that fits nothing leaves the
+# store's state, and so the outputs, as they were).
+_COUNTED = ("cells", "plan", "speedup", "speedup_plan", "datasets")
+_BUMP = "UPDATE meta SET value = CAST(value AS INTEGER) + 1 WHERE key = 'changes';"
+_STATE = "\n".join(
+    [f"CREATE TRIGGER IF NOT EXISTS changes_{t}_{op.lower()} AFTER {op} ON {t} BEGIN {_BUMP} END;"
+     for t in _COUNTED for op in ("INSERT", "UPDATE", "DELETE")]
+    + ["CREATE TRIGGER IF NOT EXISTS changes_runs_update AFTER UPDATE ON runs WHEN EXISTS "
+       "(SELECT 1 FROM cells WHERE run = NEW.run) OR EXISTS (SELECT 1 FROM speedup WHERE "
+       f"run = NEW.run) BEGIN {_BUMP} END;",
+       "INSERT OR IGNORE INTO meta VALUES ('changes', '0');",
+       "INSERT OR IGNORE INTO meta VALUES ('store_id', lower(hex(randomblob(8))));",
+       # which rows trained and tested each cell (`harness.splits.split_id`), by cell key
+       "CREATE TABLE IF NOT EXISTS cell_splits (key TEXT PRIMARY KEY, split TEXT);"])
+
+# The write-ahead log is checkpointed into the store once it holds this many pages (4 KiB
+# each) and cut back to WAL_LIMIT bytes when it starts over.
+WAL_PAGES = 128
+WAL_LIMIT = WAL_PAGES * 4096
+_CHUNK = 10_000  # rows read at a time into a frame
+
 # speedup points: one row per timed repeat
 _SPEEDUP_COLUMNS = ("run", "key", "dataset", "strategy", "family", "method", "task", "workers",
                     "repeat", "status", "message", "n_train", "n_test", "fit_seconds",
@@ -59,6 +87,66 @@ _CELL_COLUMNS = ("key", "run", "dataset", "strategy", "method", "family", "task"
                  "scores", "fit_seconds", "fit_cpu_seconds", "predict_seconds",
                  "peak_memory_bytes", "model_bytes", "curve", "threads", "timing", "worker",
                  "seconds", "finished", "row_evidence")
+
+
+def _json_list(texts: Iterable[Any], missing: str) -> list:
+    """The JSON texts of a column parsed in one call (``missing`` stands for a NULL)."""
+    return json.loads("[" + ",".join(t if isinstance(t, str) else missing for t in texts) + "]")
+
+
+def _read(cursor: sqlite3.Cursor, parse: dict[str, str] | None = None,
+          keep: set | None = None, convert=None) -> tuple[pd.DataFrame, dict[str, list]]:
+    """The rows of a query as a frame, read in chunks so that they never all exist at once
+    as Python objects. The JSON columns of ``parse`` (column → the JSON a NULL stands for)
+    come back parsed beside the frame, as one list per chunk (each passed through
+    ``convert`` first, when given); with ``keep``, only the rows whose first column is in
+    it."""
+    names = [d[0] for d in cursor.description]
+    parse = parse or {}
+    parts, parsed = [], {c: [] for c in parse}
+    while rows := cursor.fetchmany(_CHUNK):
+        if keep is not None:
+            rows = [r for r in rows if r[0] in keep]
+        values = dict(zip(names, zip(*rows))) if rows else {n: () for n in names}
+        for c, missing in parse.items():
+            found = _json_list(values.pop(c), missing)
+            parsed[c].append(convert(found) if convert else found)
+        parts.append(pd.DataFrame(values))
+    frame = (pd.concat(parts, ignore_index=True) if parts else
+             pd.DataFrame({n: () for n in names if n not in parse}))
+    return frame, parsed
+
+
+def _score_frame(chunks: list[pd.DataFrame], n: int) -> pd.DataFrame:
+    """The per-chunk frames of a parsed ``scores`` column as one frame of ``n`` rows."""
+    return (pd.concat(chunks, ignore_index=True) if chunks else pd.DataFrame()).reindex(range(n))
+
+
+def _sorted(frame: pd.DataFrame, by: list[str]) -> pd.DataFrame:
+    order = frame[by].sort_values(by, kind="stable").index
+    return frame.loc[order].reset_index(drop=True)
+
+
+@dataclass
+class CellMatch:
+    """The cells of two stores' latest plans matched by `Store.match_cells`.
+
+    ``pairs``: one row per matched cell: ``matched`` ("key" or "identity"), ``dataset,
+    strategy, repeat, fold`` (of A); for each side (suffix ``_a``, ``_b``) ``status, message,
+    method, fit_seconds, predict_seconds`` and one column per metric of ``metrics``; and
+    whether the two cells differ in ``data_differs`` (content fingerprint), ``sizes_differ``
+    (training or test rows) and ``rows_differ`` (which rows: both splits recorded and
+    different).
+    ``only_a``, ``only_b``: unmatched cells, ``dataset, strategy, repeat, fold, status``.
+    ``scores_a``: the successful cells of A, ``dataset, strategy`` and its metrics."""
+
+    cells_a: int
+    cells_b: int
+    metrics: list[str]
+    pairs: pd.DataFrame
+    only_a: pd.DataFrame
+    only_b: pd.DataFrame
+    scores_a: pd.DataFrame
 
 
 def remove_store(folder: Path) -> None:
@@ -137,6 +225,7 @@ class Store:
                 raise UserError(f"cannot create the results folder ({exc.strerror or exc})",
                                 file=self.folder) from None
         self.db = None
+        self.uri = ""  # how the file was opened (`_connect`)
         try:
             self.db = self._connect()
             found = self._schema()
@@ -162,6 +251,9 @@ class Store:
             db.execute("PRAGMA trusted_schema=OFF")
             db.execute("PRAGMA journal_mode=WAL")
             db.execute("PRAGMA synchronous=NORMAL")
+            db.execute(f"PRAGMA wal_autocheckpoint={WAL_PAGES}")
+            db.execute(f"PRAGMA journal_size_limit={WAL_LIMIT}")
+            self.uri = str(self.path)
             return db
         uri = self.path.resolve().as_uri()
         options = ["mode=ro&immutable=1"]
@@ -178,6 +270,7 @@ class Store:
                 db.execute("PRAGMA trusted_schema=OFF")
                 db.execute("PRAGMA query_only=ON")
                 db.execute("SELECT COUNT(*) FROM sqlite_master").fetchone()
+                self.uri = f"{uri}?{option}"  # how `match_cells` attaches it, read-only too
                 return db
             except sqlite3.OperationalError as exc:  # a read-only folder: no shared memory
                 db.close()
@@ -190,8 +283,8 @@ class Store:
         """The tables, all or none (one transaction: a disk that fills up half-way leaves
         the file as it was)."""
         try:
-            self.db.executescript(f"BEGIN IMMEDIATE;\n{_SCHEMA}\nINSERT OR IGNORE INTO meta "
-                                  f"VALUES ('schema', '{SCHEMA_VERSION}');\nCOMMIT;")
+            self.db.executescript(f"BEGIN IMMEDIATE;\n{_SCHEMA}\n{_STATE}\nINSERT OR IGNORE "
+                                  f"INTO meta VALUES ('schema', '{SCHEMA_VERSION}');\nCOMMIT;")
         except sqlite3.Error:
             if self.db.in_transaction:
                 self.db.execute("ROLLBACK")
@@ -266,31 +359,74 @@ class Store:
         return [{"run": r, "started": t, "provenance": json.loads(p or "{}")}
                 for r, t, p in rows]
 
-    @reported
-    def last_run(self) -> dict[str, Any] | None:
-        row = self.db.execute("SELECT run, started, finished, suite, suite_text, command, "
-                              "provenance, state FROM runs ORDER BY run DESC LIMIT 1").fetchone()
-        if row is None:
-            return None
-        keys = ("run", "started", "finished", "suite", "suite_text", "command", "provenance",
-                "state")
-        out = dict(zip(keys, row))
-        out["provenance"] = json.loads(out["provenance"] or "{}")
+    _RUN_FIELDS = ("run", "started", "finished", "suite", "suite_text", "command",
+                   "provenance", "state")
+
+    def _run_rows(self, where: str = "", params: Iterable[Any] = ()) -> list[dict[str, Any]]:
+        rows = self.db.execute(f"SELECT {', '.join(self._RUN_FIELDS)} FROM runs {where}",
+                               tuple(params)).fetchall()
+        out = [dict(zip(self._RUN_FIELDS, row)) for row in rows]
+        for r in out:
+            r["provenance"] = json.loads(r["provenance"] or "{}")
         return out
 
     @reported
+    def last_run(self) -> dict[str, Any] | None:
+        found = self._run_rows("ORDER BY run DESC LIMIT 1")
+        return found[0] if found else None
+
+    @reported
+    def latest_cell_run(self) -> dict[str, Any] | None:
+        """The latest run that stored a cell (a rerun that fitted nothing is not one)."""
+        found = self._run_rows("WHERE run = (SELECT MAX(run) FROM cells)")
+        return found[0] if found else None
+
+    @reported
+    def runs(self, numbers: Iterable[int]) -> list[dict[str, Any]]:
+        """The given runs (oldest first), each with its own provenance."""
+        numbers = sorted({int(n) for n in numbers})
+        return self._run_rows(f"WHERE run IN ({', '.join('?' * len(numbers))}) ORDER BY run",
+                              numbers)
+
+    @reported
+    def state(self) -> str | None:
+        """The store's identity and change counter, ``"<store id>:<changes>"``: equal values
+        mean nothing the report reads has changed in between (None for a store written before
+        the counter existed)."""
+        found = dict(self.db.execute("SELECT key, value FROM meta WHERE key IN "
+                                     "('store_id', 'changes')").fetchall())
+        if len(found) < 2:
+            return None
+        return f"{found['store_id']}:{found['changes']}"
+
+    @reported
     def set_plan(self, keys: Iterable[str]) -> None:
+        """The cells the latest run wants (left as it is when it holds the same keys)."""
+        keys = set(keys)
+        if keys == {k for (k,) in self.db.execute("SELECT key FROM plan")}:
+            return
         with self.db:
             self.db.execute("BEGIN")
             self.db.execute("DELETE FROM plan")
             self.db.executemany("INSERT OR IGNORE INTO plan VALUES (?)", ((k,) for k in keys))
 
     @reported
+    def record_splits(self, splits: Iterable[tuple[str, str]]) -> None:
+        """(cell key, split id) pairs: which rows trained and tested each cell. A key fixes
+        its split, so a pair once stored never changes."""
+        with self.db:
+            self.db.execute("BEGIN")
+            self.db.executemany("INSERT OR IGNORE INTO cell_splits VALUES (?, ?)", splits)
+
+    @reported
     def record_datasets(self, summaries: Iterable[tuple[str, str, dict]]) -> None:
         with self.db:
             self.db.execute("BEGIN")
-            self.db.executemany("INSERT OR REPLACE INTO datasets VALUES (?, ?, ?)",
-                                ((fp, name, json.dumps(s)) for fp, name, s in summaries))
+            self.db.executemany(
+                "INSERT INTO datasets VALUES (?, ?, ?) ON CONFLICT (fingerprint) DO UPDATE SET "
+                "name = excluded.name, summary = excluded.summary WHERE datasets.name IS NOT "
+                "excluded.name OR datasets.summary IS NOT excluded.summary",
+                ((fp, name, json.dumps(s)) for fp, name, s in summaries))
 
     @reported
     def known_fingerprints(self) -> dict[str, set[str]]:
@@ -351,17 +487,133 @@ class Store:
                                 f"({', '.join('?' * len(cols))})", [v.get(c) for c in cols])
 
     @reported
-    def cells_frame(self, *, plan_only: bool = True) -> pd.DataFrame:
-        """One row per cell; one column per metric named after its scorer."""
-        sql = "SELECT * FROM cells"
-        if plan_only and self.db.execute("SELECT COUNT(*) FROM plan").fetchone()[0]:
-            sql += " WHERE key IN (SELECT key FROM plan)"
-        frame = pd.read_sql_query(sql + " ORDER BY dataset, strategy, repeat, fold", self.db)
-        scores = [json.loads(s) if isinstance(s, str) else {} for s in frame["scores"]]
-        metrics = pd.DataFrame(scores, index=frame.index)
-        frame["curve"] = [json.loads(c) if isinstance(c, str) else None for c in frame["curve"]]
-        frame = frame.drop(columns=["scores"])
-        return pd.concat([frame, metrics], axis=1)
+    def cells_frame(self, *, plan_only: bool = True, curves: bool = True) -> pd.DataFrame:
+        """One row per cell; one column per metric named after its scorer. ``curves=False``
+        leaves out the ensemble-size curves, most of a big frame's memory (`curve_points`
+        reads them for chosen datasets)."""
+        table = [c for (c,) in self.db.execute("SELECT name FROM pragma_table_info('cells')")
+                 if c != "scores" and (curves or c != "curve")]
+        columns = ["key", *(c for c in table if c != "key"), "scores"]
+        json_columns = {"scores": "{}", **({"curve": "null"} if curves else {})}
+        frame, parsed = _read(self.db.execute(f"SELECT {', '.join(columns)} FROM cells"),
+                              json_columns, (self._plan_keys() or None) if plan_only else None)
+        by = ["dataset", "strategy", "repeat", "fold"]
+        order = frame[by].sort_values(by, kind="stable").index.to_numpy()
+        frame = frame.iloc[order].reset_index(drop=True)
+        parsed = {c: [x for chunk in lists for x in chunk] for c, lists in parsed.items()}
+        if curves:
+            frame["curve"] = [parsed["curve"][i] for i in order]
+        metrics = pd.DataFrame([parsed["scores"][i] for i in order])
+        return pd.concat([frame[table], metrics], axis=1)
+
+    def _plan_keys(self) -> set[str]:
+        return {k for (k,) in self.db.execute("SELECT key FROM plan")}
+
+    @reported
+    def curve_points(self, datasets: Iterable[str]) -> pd.DataFrame:
+        """The ensemble-size curves of the successful cells of the latest plan on
+        ``datasets``, one row per point: ``dataset, strategy, members, score``."""
+        names = list(datasets)
+        plan = self._plan_keys()
+        rows = [r for r in self.db.execute(
+            "SELECT key, dataset, strategy, curve FROM cells WHERE status = 'ok' AND curve IS "
+            f"NOT NULL AND dataset IN ({', '.join('?' * len(names))})", names)
+            if not plan or r[0] in plan]
+        curves = _json_list((r[3] for r in rows), "[]")
+        lengths = [len(c) for c in curves]
+        points = np.array([p for c in curves for p in c], dtype=float).reshape(-1, 2)
+        return pd.DataFrame({"dataset": np.repeat([r[1] for r in rows], lengths),
+                             "strategy": np.repeat([r[2] for r in rows], lengths),
+                             "members": points[:, 0].astype(int), "score": points[:, 1]})
+
+    @reported
+    def match_cells(self, other: "Store") -> CellMatch:
+        """Match the cells of this store's latest plan (A) with those of ``other``'s (B), in
+        SQL: first by cell key, then the rest by dataset, strategy, repeat and fold.
+
+        ``other`` is attached to this connection as it was opened (read-only stays
+        read-only). The work tables are temporary: on a read-only connection ``query_only``
+        is lifted for them while this runs; neither store can be written (``mode=ro``)."""
+        db = self.db
+        if self.read_only:
+            db.execute("PRAGMA query_only=OFF")
+        db.execute("ATTACH DATABASE ? AS other",
+                   (other.uri if self.read_only else str(other.path),))
+        schemas = {"a": "main", "b": "other"}
+        try:
+            for x, schema in schemas.items():  # the plan's cells, identity and key only
+                in_plan = db.execute(f"SELECT 1 FROM {schema}.plan LIMIT 1").fetchone()
+                db.execute(f"DROP TABLE IF EXISTS temp.cells_{x}")
+                db.execute(f"CREATE TEMP TABLE cells_{x} AS SELECT rowid AS src, key, dataset, "
+                           f"strategy, repeat, fold FROM {schema}.cells"
+                           + (f" WHERE key IN (SELECT key FROM {schema}.plan)" if in_plan else ""))
+                db.execute(f"CREATE INDEX temp.cells_{x}_key ON cells_{x} (key)")
+            db.execute("DROP TABLE IF EXISTS temp.pairs")
+            db.execute("CREATE TEMP TABLE pairs AS SELECT 'key' AS matched, a.rowid AS ra, "
+                       "b.rowid AS rb FROM cells_a a JOIN cells_b b ON a.key = b.key")
+            left = db.execute("SELECT EXISTS (SELECT 1 FROM cells_a WHERE key NOT IN (SELECT "
+                              "key FROM cells_b)) AND EXISTS (SELECT 1 FROM cells_b WHERE key "
+                              "NOT IN (SELECT key FROM cells_a))").fetchone()[0]
+            if left:  # cells whose keys differ: match them by what they are
+                db.execute("CREATE INDEX temp.cells_b_id ON cells_b (dataset, strategy, repeat, "
+                           "fold)")
+                db.execute("INSERT INTO pairs SELECT 'identity', a.rowid, b.rowid FROM cells_a "
+                           "a JOIN cells_b b ON a.dataset = b.dataset AND a.strategy = "
+                           "b.strategy AND a.repeat = b.repeat AND a.fold = b.fold WHERE a.key "
+                           "NOT IN (SELECT key FROM cells_b) AND b.key NOT IN (SELECT key FROM "
+                           "cells_a)")
+
+            splits = all(db.execute(f"SELECT 1 FROM {schema}.sqlite_master WHERE name = "
+                                    "'cell_splits'").fetchone() for schema in schemas.values())
+            sides = "".join(f", c{x}.{c} AS {c}_{x}" for x in "ab"
+                            for c in ("status", "message", "method", "fit_seconds",
+                                      "predict_seconds", "scores"))
+            pairs, parsed = _read(db.execute(
+                f"SELECT p.matched, a.dataset, a.strategy, a.repeat, a.fold{sides}, "
+                "ca.fingerprint IS NOT cb.fingerprint AS data_differs, ca.n_train IS NOT "
+                "cb.n_train OR ca.n_test IS NOT cb.n_test AS sizes_differ, "
+                + ("sa.split IS NOT sb.split AND sa.split IS NOT NULL AND sb.split IS NOT NULL"
+                   if splits else "0") + " AS rows_differ FROM pairs p "
+                "JOIN cells_a a ON a.rowid = p.ra JOIN cells_b b ON b.rowid = p.rb "
+                "JOIN main.cells ca ON ca.rowid = a.src JOIN other.cells cb ON cb.rowid = b.src"
+                + (" LEFT JOIN main.cell_splits sa ON sa.key = ca.key LEFT JOIN "
+                   "other.cell_splits sb ON sb.key = cb.key" if splits else "")),
+                {"scores_a": "{}", "scores_b": "{}"}, convert=pd.DataFrame)
+            only, only_scores = {}, {}
+            for x in "ab":
+                only[x], found = _read(db.execute(
+                    f"SELECT {x}.dataset, {x}.strategy, {x}.repeat, {x}.fold, c.status, "
+                    f"c.scores FROM cells_{x} {x} JOIN {schemas[x]}.cells c ON c.rowid = "
+                    f"{x}.src WHERE {x}.rowid NOT IN (SELECT r{x} FROM pairs)"), {"scores": "{}"},
+                    convert=pd.DataFrame)
+                only_scores[x] = found["scores"]
+            counts = [db.execute(f"SELECT COUNT(*) FROM cells_{x}").fetchone()[0] for x in "ab"]
+        finally:
+            for table in ("cells_a", "cells_b", "pairs"):
+                db.execute(f"DROP TABLE IF EXISTS temp.{table}")
+            db.execute("DETACH DATABASE other")
+            if self.read_only:
+                db.execute("PRAGMA query_only=ON")
+        scores = {x: _score_frame(parsed.pop(f"scores_{x}"), len(pairs)) for x in "ab"}
+        metrics = [m for m in scores["a"].columns if m in set(scores["b"].columns)]
+        pairs = pd.concat([pairs, *(scores[x][metrics].astype(float).add_suffix(f"_{x}")
+                                    for x in "ab")], axis=1)
+        del scores
+        identity = ["dataset", "strategy", "repeat", "fold"]
+        keys = pairs[identity].assign(by_identity=pairs["matched"] == "identity")
+        pairs = pairs.take(keys.sort_values(["by_identity", *identity], kind="stable").index)
+        pairs = pairs.reset_index(drop=True)
+        # the successful cells of A, matched or not: the fold-to-fold noise is measured on them
+        rest = pd.concat([only["a"][["dataset", "strategy", "status"]],
+                          _score_frame(only_scores["a"], len(only["a"]))
+                          .reindex(columns=metrics)], axis=1)
+        scores_a = pd.concat(
+            [pairs.loc[pairs["status_a"] == "ok", ["dataset", "strategy",
+                                                   *(f"{m}_a" for m in metrics)]]
+             .set_axis(["dataset", "strategy", *metrics], axis=1),
+             rest[rest["status"] == "ok"].drop(columns="status")], ignore_index=True)
+        return CellMatch(counts[0], counts[1], metrics, pairs, _sorted(only["a"], identity),
+                         _sorted(only["b"], identity), scores_a)
 
     @reported
     def speedup_frame(self) -> pd.DataFrame:
@@ -373,16 +625,6 @@ class Store:
             "SELECT s.* FROM speedup s JOIN (SELECT key, MAX(run) AS run FROM speedup "
             "WHERE key IN (SELECT key FROM speedup_plan) GROUP BY key) latest "
             "ON s.key = latest.key AND s.run = latest.run ORDER BY s.id", self.db)
-
-    @reported
-    def run_provenance(self, runs: Iterable[int]) -> dict[int, dict[str, Any]]:
-        """Run number → its provenance, for the given runs."""
-        out = {}
-        for run in sorted(set(int(r) for r in runs)):
-            row = self.db.execute("SELECT provenance FROM runs WHERE run=?", (run,)).fetchone()
-            if row is not None:
-                out[run] = json.loads(row[0] or "{}")
-        return out
 
     @reported
     def dataset_summaries(self) -> pd.DataFrame:

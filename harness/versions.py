@@ -36,8 +36,10 @@ CODE_KEY = "woodlot code"
 _PACKAGE = Path(__file__).resolve().parent
 
 
+@functools.lru_cache(maxsize=None)
 def version(distribution: str) -> str:
-    """The installed version of a distribution, or ``"missing"``."""
+    """The installed version of a distribution, or ``"missing"`` (looked up once per process:
+    reading package metadata is slow, and planning asks for it once per cell group)."""
     try:
         return metadata.version(distribution)
     except metadata.PackageNotFoundError:

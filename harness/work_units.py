@@ -12,11 +12,12 @@ import hashlib
 import json
 import socket
 from dataclasses import dataclass
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
-from harness.strategies import Strategy
+if TYPE_CHECKING:  # reading results needs no estimator library (scikit-learn is slow to load)
+    from harness.strategies import Strategy
 
 CELL_FORMAT = 3  # bump when the meaning of a stored cell changes
 OK, ERROR, TIMEOUT = "ok", "error", "timeout"

@@ -174,6 +174,46 @@ def test_store_without_accuracy_cells_still_gets_a_report(tmp_path):
     assert "caution" in page.sections
 
 
+def test_per_dataset_figures_stop_at_a_dozen_datasets_and_say_so(write_suite, tmp_path):
+    from harness import run_suite
+    from harness.report.writer import DPI, MAX_PANELS
+
+    datasets = "".join(f"""
+[[dataset]]
+name = "blobs-{i:02d}"
+from = "generator"
+make = "make_classification"
+params = {{ n_samples = 60, n_features = 4, random_state = {i} }}
+""" for i in range(MAX_PANELS + 1))
+    path = write_suite(f"""
+[suite]
+name = "many"
+
+[protocol]
+folds = 2
+repeats = 1
+{datasets}
+[[strategy]]
+name = "tree"
+method = "single-tree"
+
+[[strategy]]
+name = "forest"
+method = "random-forest"
+params = {{ n_estimators = 4 }}
+""")
+    out = run_suite(path, out=tmp_path / "out", jobs=2, progress=False).folder
+    page = Page((out / REPORT_NAME).read_text(encoding="utf-8"))
+    note = (f"Figures with one panel per dataset show the first {MAX_PANELS} of the "
+            f"{MAX_PANELS + 1} datasets by name")
+    assert note in squash(page.sections["cost"]["text"])
+    assert note in squash(page.sections["ensemble-size"]["text"])
+    for name in ("score_vs_fit_time", "ensemble_size"):
+        with Image.open(out / "plots" / f"{name}.png") as im:
+            # rows of three 3.6-inch panels plus 0.9 inch of titles (`plots.grid`)
+            assert im.height == round((3.6 * MAX_PANELS / 3 + 0.9) * DPI), name
+
+
 # ------------------------------------------------------------------ a real browser
 
 CHROMIUM = shutil.which("chromium") or shutil.which("chromium-browser")

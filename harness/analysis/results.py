@@ -70,19 +70,27 @@ def strategy_means(frame: pd.DataFrame, primary: dict[str, str]) -> pd.DataFrame
             "fit_seconds", "predict_ms_per_1000_rows", "fit_seconds_se",
             "predict_ms_per_1000_rows_se"]
     ok = ok_cells(frame)
-    rows = []
-    for (ds, st), part in ok.groupby(["dataset", "strategy"], sort=False):
-        metric = primary[ds]
-        v = part[metric].dropna()
-        if v.empty:
-            continue
-        per_1000 = predict_ms_per_1000_rows(part["predict_seconds"], part["n_test"])
-        rows.append({"dataset": ds, "strategy": st, "family": part["family"].iloc[0],
-                     "method": part["method"].iloc[0], "metric": metric,
-                     "score": float(v.mean()),
-                     "sd": float(v.std(ddof=1)) if len(v) > 1 else np.nan, "cells": len(v),
-                     "fit_seconds": float(part["fit_seconds"].mean()),
-                     "predict_ms_per_1000_rows": float(per_1000.mean()),
-                     "fit_seconds_se": standard_error(part["fit_seconds"]),
-                     "predict_ms_per_1000_rows_se": standard_error(per_1000)})
-    return pd.DataFrame(rows, columns=cols)
+    if ok.empty:
+        return pd.DataFrame(columns=cols)
+    metric = ok["dataset"].map(primary)
+    score = pd.Series(np.nan, index=ok.index)
+    for m in metric.dropna().unique():
+        at = (metric == m).to_numpy()
+        score[at] = ok.loc[at, m].astype(float)
+    times = {"fit_seconds": ok["fit_seconds"].astype(float),
+             "predict_ms_per_1000_rows": predict_ms_per_1000_rows(
+                 ok["predict_seconds"].astype(float), ok["n_test"])}
+    work = pd.DataFrame({"dataset": ok["dataset"], "strategy": ok["strategy"],
+                         "family": ok["family"], "method": ok["method"], "metric": metric,
+                         "score": score, **times,
+                         **{f"{k}_finite": v.where(np.isfinite(v)) for k, v in times.items()}})
+    g = work.groupby(["dataset", "strategy"], sort=False)
+    out = g.agg(family=("family", "first"), method=("method", "first"),
+                metric=("metric", "first"), score=("score", "mean"), sd=("score", "std"),
+                cells=("score", "count"), fit_seconds=("fit_seconds", "mean"),
+                predict_ms_per_1000_rows=("predict_ms_per_1000_rows", "mean"))
+    for k in times:  # `standard_error` per group: 0 with fewer than two finite values
+        n = g[f"{k}_finite"].count()
+        out[f"{k}_se"] = (g[f"{k}_finite"].std(ddof=1) / np.sqrt(n)).where(n > 1, 0.0)
+    out = out.reset_index()
+    return out[out["cells"] > 0].reset_index(drop=True)[cols]

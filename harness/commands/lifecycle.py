@@ -20,7 +20,7 @@ from harness.execution.executor import Executor
 from harness.files import writable_folder
 from harness.folder_lock import holding
 from harness.plan import Plan, make_plan
-from harness.report.writer import clear_outputs
+from harness.report.outputs import Outputs, clear_outputs, up_to_date
 from harness.store import STORE_NAME, Store, remove_store
 from harness.suite import Suite, load_suite
 
@@ -54,6 +54,17 @@ def killed_note(run: dict[str, Any], folder: Path) -> str:
     return (f"run {run['run']} in {folder} (process {prov.get('process', '?')} on "
             f"{prov.get('host', '?')}) ended without finishing; marked as killed, its stored "
             "cells are kept")
+
+
+def refresh_outputs(folder: Path) -> Outputs:
+    """The folder's tables, plots and report (`harness.report.writer.write_report`), unless
+    they are up to date: after a rerun that fitted nothing they are left as they are."""
+    found = up_to_date(folder)
+    if found is not None:
+        return found
+    from harness.report.writer import write_report  # plotting libraries only when drawing
+
+    return write_report(folder)
 
 
 @dataclass

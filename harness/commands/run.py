@@ -8,14 +8,15 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Callable
 
-from harness.commands.lifecycle import Echo, session, stderr_echo
+from harness.commands.lifecycle import Echo, session, stderr_echo, refresh_outputs
 from harness.commands.progress import Progress
 from harness.commands.speedup import SpeedupResult, measure_points
 from harness.errors import UserError
 from harness.execution.executor import Executor
 from harness.execution.local import LocalExecutor
 from harness.execution.memory import ENFORCED, cell_limit
-from harness.report.writer import Outputs, write_report
+from harness.plan import cell_splits
+from harness.report.outputs import Outputs
 from harness.work_units import OK, Cell
 
 TIMING = "cells side by side, one thread each"
@@ -78,7 +79,8 @@ def run_suite(path: str | Path, *, out: str | Path | None = None, jobs: int | No
     progress : show a progress bar (default: when stderr is a terminal).
     echo : where one-line notes go (default: stderr).
     command : the command line to record in the provenance (default: ``sys.argv``).
-    write_outputs : write tables and plots at the end (``woodlot report`` can do it later).
+    write_outputs : write tables and plots at the end, unless the store has not changed since
+        they were written (``woodlot report`` writes them in any case).
     select : run only the cells for which this returns True (the plan keeps them all).
     deadline : a ``time.perf_counter()`` value; no cell starts after it and running cells are
         stopped at it (recorded as timeouts). `RunResult.stopped` says whether it was reached.
@@ -97,6 +99,7 @@ def run_suite(path: str | Path, *, out: str | Path | None = None, jobs: int | No
         todo = [c for c in plan.cells if c.key not in done and (select is None or select(c))]
         result.reused = len(plan.cells) - len(todo)
         store.set_plan(c.key for c in plan.cells)
+        store.record_splits(cell_splits(plan))
         memory, s.provenance["cell_memory"] = None, "set by the Dask workers (--memory-limit)"
         if isinstance(executor, LocalExecutor):
             memory, s.provenance["cell_memory"] = cell_limit(s.suite.protocol.cell_memory,
@@ -128,5 +131,5 @@ def run_suite(path: str | Path, *, out: str | Path | None = None, jobs: int | No
             result.speedup = measure_points(s, s.suite.speedup, retry_failed=retry_failed,
                                             progress=progress, echo=echo)
     if write_outputs:
-        result.outputs = write_report(s.folder)
+        result.outputs = refresh_outputs(s.folder)
     return result

@@ -21,13 +21,13 @@ from typing import Any, Iterator
 import psutil
 
 from harness import provenance
-from harness.commands.lifecycle import Echo, Session, session, stderr_echo
+from harness.commands.lifecycle import Echo, Session, session, stderr_echo, refresh_outputs
 from harness.commands.progress import Progress
 from harness.execution.memory import cell_limit
 from harness.execution.speedup_point import run_point
 from harness.locks import exclusive
 from harness.plan import plan_speedup, usable_cores
-from harness.report.writer import Outputs, write_report
+from harness.report.outputs import Outputs
 from harness.suite import SpeedupSettings
 from harness.work_units import OK
 
@@ -163,4 +163,4 @@ def speedup_suite(path, *, out=None, fresh: bool = False, retry_failed: bool = F
                  "strategy with the default worker counts")
         result = measure_points(s, s.suite.speedup or SpeedupSettings(), fresh=fresh,
                                 retry_failed=retry_failed, progress=progress, echo=echo)
-    return result, write_report(s.folder) if write_outputs else None
+    return result, refresh_outputs(s.folder) if write_outputs else None

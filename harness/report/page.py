@@ -93,12 +93,14 @@ class PageContent:
     datasets: pd.DataFrame = field(default_factory=pd.DataFrame)
     failures: pd.DataFrame = field(default_factory=pd.DataFrame)
     provenance: list[tuple[str, Any]] = field(default_factory=list)
+    runs: pd.DataFrame = field(default_factory=pd.DataFrame)  # the runs that computed them
     suite_text: str = ""
     has_speedup: bool = False
     # woodlot choose: its sentences, then (title, items) such as warnings
     recommendation: list[str] = field(default_factory=list)
     recommendation_sections: list[tuple[str, list[str]]] = field(default_factory=list)
     status: str = ""  # said at the top when the results are partial
+    panels_note: str = ""  # when per-dataset figures show only some of the datasets
 
 
 # ------------------------------------------------------------------ small helpers
@@ -225,6 +227,7 @@ def _cost_section(c: PageContent) -> str:
              "side by side, one thread each, on a machine that may have been busy: read small "
              "differences as noise. A strategy is <em>dominated</em> when another is at least as "
              "accurate and at least as cheap, one of them strictly.</p>",
+             _notes([c.panels_note] if c.panels_note else []),
              _img(c, "score_vs_fit_time", "score against fit time per dataset"),
              _img(c, "rank_vs_fit_time", "average rank against fit time over all datasets")]
     if "pareto" in c.tables and not c.tables["pareto"].display.empty:
@@ -237,6 +240,7 @@ def _ensemble_section(c: PageContent) -> str:
         return "<p>No ensemble-size curves were recorded.</p>"
     return ("<p>Test score of the first n members (trees or boosting stages) of each fitted "
             "ensemble, mean over folds: where a curve flattens, more members buy little.</p>"
+            + _notes([c.panels_note] if c.panels_note else [])
             + _img(c, "ensemble_size", "score against ensemble size"))
 
 
@@ -264,7 +268,13 @@ def _failures_section(c: PageContent) -> str:
 
 
 def _provenance_section(c: PageContent) -> str:
-    body = html_table(pd.DataFrame(c.provenance, columns=["what", "value"]).astype(str))
+    body = ""
+    if not c.runs.empty:
+        body += ("<h3>Which runs computed these results</h3><p>Each cell and speedup point "
+                 "keeps the run that computed it; a later run that found everything stored "
+                 "computed nothing and is not listed.</p>" + html_table(c.runs))
+        body += "<h3>The latest of these runs</h3>"
+    body += html_table(pd.DataFrame(c.provenance, columns=["what", "value"]).astype(str))
     if c.suite_text:
         body += ("<details><summary>The suite file as run</summary><pre>" + esc(c.suite_text)
                  + "</pre></details>")

@@ -9,6 +9,7 @@ import math
 import numpy as np
 import pandas as pd
 from matplotlib.figure import Figure
+from matplotlib.lines import Line2D
 from matplotlib.ticker import NullFormatter
 
 from harness.analysis.stats import pareto_front
@@ -47,6 +48,23 @@ def legend_below(fig: Figure, handles_labels: dict, ncol: int | None = None) -> 
                ncol=ncol, frameon=False, fontsize=9, bbox_to_anchor=(0.5, 0.0))
     height = fig.get_size_inches()[1]
     return min(0.45, (0.3 + 0.25 * rows) / height)
+
+
+def place_panels(fig: Figure, bottom: float, top: float) -> None:
+    """Fixed margins, in inches, for the panels of a `grid` figure between the legend
+    (``bottom``, a share of the height) and the title (``top``): room for a tick-labelled
+    axis and a title around each panel. A fixed layout costs nothing; matplotlib's tight
+    layout measures every label of every panel, most of the drawing time of a big figure."""
+    width, height = fig.get_size_inches()
+    axes = [ax for ax in fig.axes if ax.get_visible()]
+    cols = max(ax.get_subplotspec().colspan.stop for ax in axes)
+    rows = max(ax.get_subplotspec().rowspan.stop for ax in axes)
+    left, right, below, above = 0.8, 0.3, 0.55, 0.35  # inches around each panel
+    panel_w = (width - cols * (left + right)) / cols
+    panel_h = (height * (top - bottom) - rows * (below + above)) / rows
+    fig.subplots_adjust(left=left / width, right=1 - right / width,
+                        bottom=bottom + below / height, top=top - above / height,
+                        wspace=(left + right) / panel_w, hspace=(below + above) / panel_h)
 
 
 def log_x(ax) -> None:
@@ -90,16 +108,25 @@ def score_vs_fit_time(means: pd.DataFrame) -> Figure | None:
     if means.empty:
         return None
     fig, panels, colors = dataset_panels(means, extra=1.1)
-    handles = {}
+    handles = {plain(name): Line2D([], [], marker=marker(family), color=colors[name],
+                                   markersize=7, linestyle="none")
+               for name, family in zip(means["strategy"], means["family"])}
     for ax, ds, g in panels:
         g = g.set_index("strategy")
         metric = g["metric"].iloc[0]
         scores = as_read(metric, g["score"])
-        for name, r in g.iterrows():
-            h = ax.errorbar(r["fit_seconds"], scores[name], yerr=0 if np.isnan(r["sd"])
-                            else r["sd"], fmt=marker(r["family"]), color=colors[name],
-                            markersize=7, capsize=3, linestyle="none")
-            handles[plain(name)] = h
+        sd = g["sd"].fillna(0.0)
+        shade = [colors[name] for name in g.index]
+        # one call per panel for the bars and one per family for the points: a few artists
+        # per panel, not several per strategy (drawing time grows with the artists)
+        ax.vlines(g["fit_seconds"], scores - sd, scores + sd, colors=shade, linewidth=1.2)
+        ax.scatter(np.repeat(g["fit_seconds"].to_numpy(), 2),
+                   np.concatenate([(scores - sd).to_numpy(), (scores + sd).to_numpy()])
+                   .reshape(2, -1).T.ravel(), marker="_", s=40, c=np.repeat(shade, 2, axis=0),
+                   linewidths=1.2)
+        for family, part in g.groupby("family", sort=False):
+            ax.scatter(part["fit_seconds"], scores[part.index], marker=marker(family), s=49,
+                       c=[colors[name] for name in part.index], zorder=3)
         log_x(ax)
         line = _front_line(ax, pd.DataFrame({"score": scores, "cost": g["fit_seconds"]}),
                            higher_is_better=not lower_is_better(metric))
@@ -111,8 +138,7 @@ def score_vs_fit_time(means: pd.DataFrame) -> Figure | None:
         ax.grid(True, which="both", alpha=0.3)
     fig.suptitle("Test score against fit time\n(bars: ± 1 sd over folds; dashed: Pareto front)",
                  fontsize=11)
-    bottom = legend_below(fig, handles)
-    fig.tight_layout(rect=(0, bottom, 1, _top(fig, 2)))
+    place_panels(fig, legend_below(fig, handles), _top(fig, 2))
     return fig
 
 
@@ -157,22 +183,24 @@ def rank_vs_fit_time(ranks: pd.Series, costs: pd.DataFrame, n_datasets: int) -> 
     return fig
 
 
-def size_curves(ok: pd.DataFrame, primary: dict[str, str]) -> Figure | None:
+def size_curves(points: pd.DataFrame, primary: dict[str, str],
+                cells: pd.DataFrame) -> Figure | None:
     """Per dataset: mean test score against the number of ensemble members (log axis).
-    ``ok``: successful cells of the results frame."""
-    ok = ok[ok["curve"].notna()]
-    if ok.empty:
+    ``points``: one row per curve point of a successful cell (``dataset, strategy, members,
+    score``; `harness.store.Store.curve_points`); ``cells``: the results frame of those
+    datasets, for each strategy's family and colour."""
+    if points.empty:
         return None
-    fig, panels, colors = dataset_panels(ok)
+    means = points.groupby(["dataset", "strategy", "members"])["score"].mean().reset_index()
+    family = cells.drop_duplicates("strategy").set_index("strategy")["family"]
+    fig, panels, colors = dataset_panels(means, colors_from=cells)
     handles = {}
     for ax, ds, part in panels:
         metric = primary[ds]
-        for name, cells in part.groupby("strategy"):
-            points = pd.DataFrame([p for c in cells["curve"] for p in c], columns=["n", "score"])
-            mean = points.groupby("n")["score"].mean()
-            (h,) = ax.plot(mean.index, as_read(metric, mean.to_numpy()),
-                           marker=marker(cells["family"].iloc[0]), color=colors[name],
-                           markersize=4, linewidth=1.5)
+        for name, mean in part.groupby("strategy"):
+            (h,) = ax.plot(mean["members"], as_read(metric, mean["score"].to_numpy()),
+                           marker=marker(family[name]), color=colors[name], markersize=4,
+                           linewidth=1.5)
             handles[plain(name)] = h
         log_x(ax)
         ax.set_title(plain(ds), fontsize=11)
@@ -180,6 +208,5 @@ def size_curves(ok: pd.DataFrame, primary: dict[str, str]) -> Figure | None:
         ax.set_ylabel(metric_heading(metric), fontsize=9)
         ax.grid(True, which="both", alpha=0.3)
     fig.suptitle("Test score as the ensemble grows (mean over folds)", fontsize=12)
-    bottom = legend_below(fig, handles)
-    fig.tight_layout(rect=(0, bottom, 1, _top(fig)))
+    place_panels(fig, legend_below(fig, handles), _top(fig))
     return fig

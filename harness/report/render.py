@@ -124,18 +124,24 @@ class Table:
     row_classes: list[str] | None = None
     footer: str = ""
 
+    _groups: list | None = field(default=None, init=False, repr=False, compare=False)
+
     def groups(self) -> list[tuple[str | None, pd.DataFrame, list[str] | None]]:
-        """(group value or None, its display rows without the group column, row classes)."""
+        """(group value or None, its display rows without the group column, row classes);
+        worked out once per table."""
+        if self._groups is not None:
+            return self._groups
         classes = self.row_classes or [""] * len(self.display)
         if self.group is None:
-            return [(None, self.display, classes)]
-        out = []
-        keys = self.display[self.group]
-        for g in dict.fromkeys(keys):
-            rows = (keys == g).to_numpy()
-            out.append((str(g), self.display[rows].drop(columns=[self.group]),
-                        [c for c, r in zip(classes, rows) if r]))
-        return out
+            self._groups = [(None, self.display, classes)]
+            return self._groups
+        rows = self.display.drop(columns=[self.group])
+        codes, values = pd.factorize(self.display[self.group], use_na_sentinel=False)
+        order = np.argsort(codes, kind="stable")  # groups in order of first appearance
+        ends = np.cumsum(np.bincount(codes, minlength=len(values)))
+        self._groups = [(str(g), rows.iloc[at], [classes[i] for i in at])
+                        for g, at in zip(values, np.split(order, ends[:-1]))]
+        return self._groups
 
 
 def _cell_text(v) -> str:

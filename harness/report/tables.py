@@ -34,28 +34,32 @@ def _level(v: Verdict) -> str:
 
 def scores(frame: pd.DataFrame) -> Table:
     """Per dataset × strategy × metric: mean, sd and number of successful cells."""
+    cols = ["dataset", "strategy", "family", "metric", "mean", "sd", "cells"]
     ok = ok_cells(frame)
-    rows = []
-    for (ds, st), part in ok.groupby(["dataset", "strategy"], sort=False):
-        for m in metric_columns(part):
-            v = part[m].dropna()
-            if len(v):
-                rows.append({"dataset": ds, "strategy": st, "family": part["family"].iloc[0],
-                             "metric": m, "mean": v.mean(),
-                             "sd": v.std(ddof=1) if len(v) > 1 else np.nan, "cells": len(v)})
-    data = pd.DataFrame(rows, columns=["dataset", "strategy", "family", "metric", "mean", "sd",
-                                       "cells"])
-    shown = []
-    for ds, part in data.groupby("dataset", sort=False):
-        wide = {"dataset": ds}
-        for st, g in part.groupby("strategy", sort=False):
-            row = dict(wide, strategy=st)
-            for _, r in g.iterrows():
-                mean = as_read(r["metric"], r["mean"])
-                row[metric_heading(r["metric"])] = (f"{number(mean)} ± {number(r['sd'])}"
-                                                    if pd.notna(r["sd"]) else number(mean))
-            shown.append(row)
-    display = pd.DataFrame(shown).fillna("") if shown else pd.DataFrame()
+    metrics = metric_columns(frame)
+    data = pd.DataFrame(columns=cols)
+    if not ok.empty and metrics:
+        g = ok.groupby(["dataset", "strategy"], sort=False)
+        values = g[metrics]
+        n = len(g)
+        keys = values.mean().index
+        data = pd.DataFrame({
+            "dataset": np.repeat(keys.get_level_values(0), len(metrics)),
+            "strategy": np.repeat(keys.get_level_values(1), len(metrics)),
+            "family": np.repeat(g["family"].first().to_numpy(), len(metrics)),
+            "metric": np.tile(metrics, n),
+            "mean": values.mean().to_numpy(float).ravel(),
+            "sd": values.std(ddof=1).to_numpy(float).ravel(),
+            "cells": values.count().to_numpy().ravel()})
+        data = data[data["cells"] > 0].reset_index(drop=True)
+    shown: dict[tuple, dict] = {}
+    for r in data.itertuples(index=False):
+        row = shown.setdefault((r.dataset, r.strategy),
+                               {"dataset": r.dataset, "strategy": r.strategy})
+        mean = as_read(r.metric, r.mean)
+        row[metric_heading(r.metric)] = (f"{number(mean)} ± {number(r.sd)}"
+                                         if pd.notna(r.sd) else number(mean))
+    display = pd.DataFrame(list(shown.values())).fillna("") if shown else pd.DataFrame()
     return Table("scores", "Scores per dataset (mean ± sd over repeats × folds)", data, display,
                  group="dataset" if shown else None)
 
@@ -145,7 +149,7 @@ def intervals(v: Verdict) -> Table:
 def pairs(v: Verdict) -> Table:
     """Per dataset: every pair's verdict, its probabilities and the frequentist test."""
     rows, classes = [], []
-    for _, r in v.pairs.iterrows():
+    for r in v.pairs.to_dict("records"):  # plain dicts: thousands of pairs on a big store
         metric = r["metric"]
         sign = -1 if lower_is_better(metric) else 1
         lo, hi = sorted([sign * r["low"], sign * r["high"]]) if pd.notna(r["low"]) \

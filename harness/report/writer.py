@@ -1,57 +1,38 @@
 """Writing a results folder's report from its store alone: ``tables/*.csv`` and ``*.md``,
-``plots/*.png``, ``provenance.json`` and ``report.html``, into the folder or another one. The
-store is opened read-only. The only module of the report that writes files; every file is
-written through a temporary name (`harness.files`). A run still going in the folder, or one
-that ended without finishing, is said at the top of the page (the results are partial)."""
+``plots/*.png``, ``provenance.json``, ``report.html`` and, last, ``outputs.json`` (the state of
+the store they were written from, so a rerun that changed nothing leaves them as they are),
+into the folder or another one. The store is opened read-only. The only module of the report
+that writes files; every file is written through a temporary name (`harness.files`). A run
+still going in the folder, or one that ended without finishing, is said at the top of the
+page (the results are partial)."""
 
 from __future__ import annotations
 
 import io
 import json
-import shutil
 import time
-from dataclasses import dataclass, field
 from pathlib import Path
 
 import pandas as pd
 from matplotlib.figure import Figure
 
-from harness.analysis.results import ok_cells, strategy_means
+from harness.analysis.results import strategy_means
 from harness.analysis.speedup import summarize
 from harness.analysis.verdict import Verdict, verdict
 from harness.files import writable_folder, write_bytes, write_text
 from harness.folder_lock import running_elsewhere
 from harness.report import plots, speedup_plots, tables, verdict_plots, words
 from harness.report.cd_diagram import cd_figure
+from harness.report.outputs import STATE_NAME, SUMMARY_NAME, Outputs, state_text
 from harness.report.page import REPORT_NAME, PageContent, render
 from harness.report.render import Table, md_text, to_markdown
 from harness.store import Store
 from harness.suite import Equivalence
 
-SUMMARY_NAME = "summary.md"
-OUTPUT_FILES = ("provenance.json", SUMMARY_NAME, REPORT_NAME)
-OUTPUT_FOLDERS = ("tables", "plots")
 DPI = 110
-
-
-@dataclass
-class Outputs:
-    """What `write_report` wrote and the analysis behind it."""
-
-    folder: Path
-    files: list[Path] = field(default_factory=list)
-    status: str = ""  # when the results are partial: why
-    verdict: Verdict | None = None        # when the store has accuracy cells
-    speedup: pd.DataFrame | None = None   # one line per dataset × strategy, when it has speedup points
-    tables: dict[str, Table] = field(default_factory=dict)
-
-
-def clear_outputs(folder: Path) -> None:
-    """Remove everything `write_report` writes (before a fresh run)."""
-    for name in OUTPUT_FILES:
-        (folder / name).unlink(missing_ok=True)
-    for sub in OUTPUT_FOLDERS:
-        shutil.rmtree(folder / sub, ignore_errors=True)
+# Figures with one panel per dataset show at most this many datasets (the first by name):
+# past that they take longer to draw than everything else and are too tall to read.
+MAX_PANELS = 12
 
 
 def png(fig: Figure, dpi: int = DPI) -> bytes:
@@ -71,26 +52,54 @@ def executor_text(prov: dict) -> str:
             + ", ".join(f"{host} ({n})" for host, n in hosts.items()))
 
 
+def _when(t) -> str:
+    return time.strftime("%Y-%m-%d %H:%M:%S", time.localtime(t)) if t else "–"
+
+
 def _provenance_rows(run: dict | None, n_cells: int, folder: Path) -> list[tuple[str, object]]:
+    """What the latest run that computed any of the results says about how they were made."""
     run = run or {}
     prov = run.get("provenance", {}) or {}
-
-    def when(t):
-        return time.strftime("%Y-%m-%d %H:%M:%S", time.localtime(t)) if t else "–"
     return [("suite", prov.get("suite", run.get("suite"))),
-            ("command", prov.get("command", run.get("command"))),
-            ("run", f"{run.get('run', '–')}: started {when(run.get('started'))}, finished "
-                    f"{when(run.get('finished'))} ({run.get('state')})"),
             ("cells in the latest plan", n_cells),
             ("executor", executor_text(prov)),
             ("timing", prov.get("timing")),
             ("machine", f"{prov.get('cpu_model', '?')}, {prov.get('cores', '?')} cores, "
                         f"{prov.get('platform', '?')}, host {prov.get('host', '?')}"),
-            ("load average (1, 5, 15 min)", f"before {prov.get('load_average')}, after "
-                                            f"{prov.get('load_average_after')}"),
             ("Python", prov.get("python")),
             ("libraries", ", ".join(f"{k} {v}" for k, v in prov.get("libraries", {}).items())),
             ("results folder", str(folder))]
+
+
+def _runs_table(runs: list[dict]) -> pd.DataFrame:
+    """One line per run that computed the cells or speedup points shown: how many, when,
+    with which command, where, and the load of the machine."""
+    def load(value) -> str:
+        return ", ".join(f"{x:g}" for x in value) if value else "–"
+    rows = []
+    for r in runs:
+        prov = r.get("provenance") or {}
+        rows.append({"run": r["run"], "cells": r["cells"], "speedup points": r["points"],
+                     "started": _when(r["started"]), "finished": _when(r["finished"]),
+                     "state": r["state"] or "–", "command": r["command"] or "–",
+                     "host": prov.get("host", "–"),
+                     "load average before": load(prov.get("load_average")),
+                     "after": load(prov.get("load_average_after"))})
+    return pd.DataFrame(rows, columns=["run", "cells", "speedup points", "started", "finished",
+                                       "state", "command", "host", "load average before",
+                                       "after"])
+
+
+def _computing_runs(store: Store, frame: pd.DataFrame, points: pd.DataFrame) -> list[dict]:
+    """The runs that computed the cells and speedup points shown, oldest first, each with
+    how many it computed; a rerun that fitted nothing is not among them."""
+    cells = frame["run"].value_counts() if not frame.empty else pd.Series(dtype=int)
+    done = (points.drop_duplicates("key")["run"].value_counts() if not points.empty
+            else pd.Series(dtype=int))
+    runs = store.runs(set(cells.index) | set(done.index))
+    for r in runs:
+        r["cells"], r["points"] = int(cells.get(r["run"], 0)), int(done.get(r["run"], 0))
+    return runs
 
 
 def _dataset_table(datasets: pd.DataFrame, frame: pd.DataFrame,
@@ -129,6 +138,12 @@ def _verdict_figures(v: Verdict) -> dict[str, Figure]:
     return figs
 
 
+def _gone(run: dict | None) -> dict | None:
+    """``run`` marked killed when it is still marked running (call when no run holds the
+    folder's lock)."""
+    return {**run, "state": "killed"} if run and run.get("state") == "running" else run
+
+
 def run_status(folder: Path, run: dict | None, running: str | None) -> str:
     """Why the folder's results are partial (``running``: who is still writing to it; or
     the latest run ended without finishing), or ''."""
@@ -150,25 +165,34 @@ def write_report(folder: str | Path, recommendation: list[str] | None = None,
     """Tables (CSV + Markdown), plots, provenance and report.html for the folder's latest
     plan, from its store alone (opened read-only), written into ``out`` (default: the
     folder itself); `woodlot choose` adds its recommendation (sentences and titled sections
-    such as warnings) at the top of the page."""
+    such as warnings) at the top of the page. ``outputs.json`` comes last, naming the store
+    state the outputs show."""
     folder = Path(folder)
     with Store(folder, read_only=True) as store:
-        frame = store.cells_frame()
-        run = store.last_run()
+        state = store.state()
+        frame = store.cells_frame(curves=False)
+        last = store.last_run()
         datasets = store.dataset_summaries()
         points_frame = store.speedup_frame()
-        speedup_runs = store.run_provenance(points_frame["run"]) if not points_frame.empty \
-            else {}
+        runs = _computing_runs(store, frame, points_frame)
+        panels = list(dict.fromkeys(frame["dataset"]))[:MAX_PANELS] if not frame.empty else []
+        curves = store.curve_points(panels) if panels else pd.DataFrame()
     running = running_elsewhere(folder)
-    if running is None and run is not None and run.get("state") == "running":
-        run = {**run, "state": "killed"}  # its process is gone: it holds no lock
-    status = run_status(folder, run, running)
+    if running is None:  # a run still marked running holds no lock: its process is gone
+        last, runs = _gone(last), [_gone(r) for r in runs]
+    status = run_status(folder, last, running)
+    run = runs[-1] if runs else last
     target = writable_folder(out if out is not None else folder)
+    (target / STATE_NAME).unlink(missing_ok=True)
     out = Outputs(target, status=status)
-    provenance = (run or {}).get("provenance", {})
+    provenance = dict((run or {}).get("provenance", {}))
+    provenance["runs"] = [{"run": r["run"], "cells": r["cells"], "speedup_points": r["points"],
+                           "state": r["state"], "command": r["command"],
+                           "provenance": r["provenance"]} for r in runs]
     out.files.append(write_text(target / "provenance.json", json.dumps(provenance, indent=2)))
     figures: dict[str, Figure] = {}
     found: list[Table] = []
+    n_datasets = frame["dataset"].nunique() if not frame.empty else 0
     if not frame.empty:
         v = verdict(frame, provenance.get("metrics"),
                     Equivalence.from_settings(provenance.get("equivalence")))
@@ -186,17 +210,19 @@ def write_report(folder: str | Path, recommendation: list[str] | None = None,
         out.files.append(write_text(target / SUMMARY_NAME, "# The short answer\n\n" + "".join(
             f"{md_text(s)}\n\n" for s in words.bottom_line(v)) + "## Details\n\n" + "".join(
             f"- {md_text(s)}\n" for s in words.details(v))))
+        shown = frame[frame["dataset"].isin(panels)]
         for name, fig in (("score_vs_fit_time", plots.score_vs_fit_time(
-                              strategy_means(frame, v.primary))),
-                          ("ensemble_size", plots.size_curves(ok_cells(frame), v.primary))):
+                              strategy_means(shown, v.primary))),
+                          ("ensemble_size", plots.size_curves(curves, v.primary, shown))):
             if fig is not None:
                 figures[name] = fig
     if not points_frame.empty:
-        runs = [p.get("speedup", {}) for _, p in sorted(speedup_runs.items())
-                  if p.get("speedup")]
-        margin = float(runs[-1].get("noise_margin", 0.15)) if runs else 0.15
+        settings = [r["provenance"]["speedup"] for r in runs
+                    if r["points"] and r["provenance"].get("speedup")]
+        margin = float(settings[-1].get("noise_margin", 0.15)) if settings else 0.15
         points, fits = summarize(points_frame, noise_margin=margin)
-        found += [tables.speedup_points(points, runs, margin), tables.serial_fraction(fits)]
+        found += [tables.speedup_points(points, settings, margin),
+                  tables.serial_fraction(fits)]
         out.speedup = tables.speedup_summary(points, fits)
         for name, fig in (("speedup", speedup_plots.speedup_plot(points, fits)),
                           ("fit_time_vs_workers", speedup_plots.fit_time_plot(points, fits))):
@@ -215,14 +241,25 @@ def write_report(folder: str | Path, recommendation: list[str] | None = None,
     content = PageContent(
         suite=(run or {}).get("suite") or folder.name,
         version=provenance.get("libraries", {}).get("woodlot", ""), n_cells=len(frame),
-        n_datasets=frame["dataset"].nunique() if not frame.empty else 0,
+        n_datasets=n_datasets,
         n_strategies=frame["strategy"].nunique() if not frame.empty else 0,
         verdict=out.verdict, tables=out.tables, images=images,
         datasets=_dataset_table(datasets, frame, out.verdict),
         failures=out.tables["failures"].data if "failures" in out.tables else pd.DataFrame(),
-        provenance=_provenance_rows(run, len(frame), folder),
+        provenance=_provenance_rows(run, len(frame), folder), runs=_runs_table(runs),
         suite_text=(run or {}).get("suite_text") or "", has_speedup=not points_frame.empty,
         recommendation=recommendation or [],
-        recommendation_sections=recommendation_sections or [], status=status)
+        recommendation_sections=recommendation_sections or [], status=status,
+        panels_note=_panels_note(n_datasets))
     out.files.append(write_text(target / REPORT_NAME, render(content)))
+    write_text(target / STATE_NAME, state_text(state, target, out.files, partial=bool(status)))
     return out
+
+
+def _panels_note(n_datasets: int) -> str:
+    if n_datasets <= MAX_PANELS:
+        return ""
+    return (f"Figures with one panel per dataset show the first {MAX_PANELS} of the "
+            f"{n_datasets} datasets by name (more panels would take longer to draw than the "
+            "rest of the report and be too tall to read); tables/scores.csv and "
+            "tables/costs.csv have every dataset.")
