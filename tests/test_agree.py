@@ -147,3 +147,96 @@ def test_bad_input_is_one_line_and_exit_2(reference, copy, tmp_path, capsys):
     assert main(["agree", str(reference), str(b)]) == 2
     err = capsys.readouterr().err
     assert err.count("\n") == 1 and "share no cell" in err
+
+
+# ------------------------------------------------------------------ matching, in SQL
+
+def _pandas_match(fa, fb):
+    """The same matching done by pandas merges (the reference for the SQL in the store):
+    by key, then the cells left over by dataset, strategy, repeat and fold."""
+    ident = ["dataset", "strategy", "repeat", "fold"]
+    by_key = fa.merge(fb, on="key")
+    rest_a = fa[~fa["key"].isin(by_key["key"])]
+    rest_b = fb[~fb["key"].isin(by_key["key"])]
+    by_id = rest_a.merge(rest_b, on=ident, suffixes=("_a", "_b"))
+    return ({tuple(r) for r in by_key[[f"{c}_x" for c in ident]].to_numpy()},
+            {tuple(r) for r in by_id[ident].to_numpy()})
+
+
+def test_sql_matching_agrees_with_pandas_merges(reference, copy):
+    b, db = copy
+    # a mixture: renamed keys on one dataset (identity matches), a deleted cell (only in A),
+    # a cell of B's own (only in B) and a changed score
+    db.execute("UPDATE plan SET key = key || 'x' WHERE key IN (SELECT key FROM cells WHERE "
+               "dataset = 'friedman' AND strategy = 'gb')")
+    db.execute("UPDATE cells SET key = key || 'x' WHERE dataset = 'friedman' AND strategy = "
+               "'gb'")
+    db.execute("DELETE FROM cells WHERE dataset = 'wine' AND strategy = 'tree' AND repeat = 0 "
+               "AND fold = 0")
+    db.execute("INSERT INTO cells SELECT key || 'new', run, dataset, 'extra', method, family, "
+               "task, repeat, fold, fingerprint, n_train, n_test, status, message, detail, "
+               "scores, fit_seconds, fit_cpu_seconds, predict_seconds, peak_memory_bytes, "
+               "model_bytes, curve, threads, timing, worker, seconds, finished FROM cells "
+               "WHERE dataset = 'wine' AND strategy = 'forest' AND repeat = 1 AND fold = 2")
+    db.execute("INSERT INTO plan SELECT key FROM cells WHERE strategy = 'extra'")
+    by_key, by_id = _pandas_match(load_results(reference), load_results(b))
+    c = agree_folders(reference, b)
+    assert (c.by_key, c.by_identity) == (len(by_key), len(by_id)) == (29, 6)
+    matched = {tuple(r) for r in c.scores[["dataset", "strategy", "repeat", "fold"]]
+               .astype(object).to_numpy()}
+    assert matched == by_key | by_id
+    assert c.only_a[["dataset", "strategy", "repeat", "fold"]].values.tolist() == \
+        [["wine", "tree", 0, 0]]
+    assert c.only_b[["dataset", "strategy"]].values.tolist() == [["wine", "extra"]]
+
+
+# ------------------------------------------------------------------ not comparable
+
+@pytest.mark.parametrize("change, words", [
+    ("seed = 3", "seed = 4"),          # other rows, same sizes: told by the recorded splits
+    ("folds = 3", "folds = 2"),        # other split sizes
+])
+def test_folders_with_other_splits_are_not_comparable(reference, run_once, change, words,
+                                                      capsys):
+    other = run_once(SMALL_SUITE.replace(change, words), "other").folder
+    assert main(["agree", str(reference), str(other)]) == 2
+    err = capsys.readouterr().err
+    assert err.count("\n") == 1 and err.startswith("woodlot: ")
+    assert "are not comparable (different splits" in err
+    assert "trained and tested on other rows" in err
+
+
+def test_cells_on_other_rows_are_counted_apart(reference, copy, capsys):
+    """One dataset split anew (as if its rows had been reshuffled): its cells are left out
+    and named; the other dataset is compared as usual."""
+    b, db = copy
+    db.execute("UPDATE cell_splits SET split = 'other-' || split, key = key || 'x' WHERE key "
+               "IN (SELECT key FROM cells WHERE dataset = 'wine')")
+    db.execute("UPDATE plan SET key = key || 'x' WHERE key IN (SELECT key FROM cells WHERE "
+               "dataset = 'wine')")
+    db.execute("UPDATE cells SET key = key || 'x' WHERE dataset = 'wine'")
+    c = agree_folders(reference, b)
+    assert c.by_identity == 18 and c.other_rows.values.tolist() == [["wine", 18]]
+    assert c.compared == 18 and set(c.scores["dataset"]) == {"friedman"}
+    assert "other rows in the splits" in c.key_reasons["reason"].iloc[0]
+    assert main(["agree", str(reference), str(b)]) == 0
+    out = capsys.readouterr().out
+    assert "Not compared: 18 matched cell(s) were trained and tested on other rows" in out
+    assert "(18 cells compared; 18 on other rows not compared)." in out
+
+
+def test_every_cut_listing_says_how_many_rows_it_leaves_out(reference, copy):
+    from harness.report.agreement import render
+
+    b, db = copy
+    db.execute("UPDATE cells SET status = 'error', message = 'ValueError: x', scores = NULL "
+               "WHERE strategy = 'gb'")            # 12 status changes
+    db.execute("DELETE FROM cells WHERE strategy = 'tree' AND repeat = 1")  # 6 only in A
+    db.execute("UPDATE cells SET fit_seconds = fit_seconds * 5")  # every fit time ×5
+    text = render(agree_folders(reference, b), limit=1)
+    assert "(11 more rows not shown: 1 of 12 listed)" in text     # status changes
+    assert "Only in A (6 cells):" in text
+    assert "(1 more rows not shown: 1 of 2 listed)" in text       # only in A, 2 groups
+    assert "(3 more rows not shown: 1 of 4 listed)" in text       # fit time ×5: 4 groups
+    full = render(agree_folders(reference, b))
+    assert "more rows not shown" not in full
