@@ -193,15 +193,7 @@ name = "many"
 folds = 2
 repeats = 1
 {datasets}
-[[strategy]]
-name = "tree"
-method = "single-tree"
-
-[[strategy]]
-name = "forest"
-method = "random-forest"
-params = {{ n_estimators = 4 }}
-""")
+""" + SMALL_SUITE[SMALL_SUITE.index("[[strategy]]"):])
     out = run_suite(path, out=tmp_path / "out", jobs=2, progress=False).folder
     page = Page((out / REPORT_NAME).read_text(encoding="utf-8"))
     note = (f"Figures with one panel per dataset show the first {MAX_PANELS} of the "
