@@ -173,11 +173,10 @@ def test_sql_matching_agrees_with_pandas_merges(reference, copy):
                "'gb'")
     db.execute("DELETE FROM cells WHERE dataset = 'wine' AND strategy = 'tree' AND repeat = 0 "
                "AND fold = 0")
-    db.execute("INSERT INTO cells SELECT key || 'new', run, dataset, 'extra', method, family, "
-               "task, repeat, fold, fingerprint, n_train, n_test, status, message, detail, "
-               "scores, fit_seconds, fit_cpu_seconds, predict_seconds, peak_memory_bytes, "
-               "model_bytes, curve, threads, timing, worker, seconds, finished FROM cells "
-               "WHERE dataset = 'wine' AND strategy = 'forest' AND repeat = 1 AND fold = 2")
+    columns = [r[1] for r in db.execute("PRAGMA table_info(cells)")]
+    copied = ", ".join({"key": "key || 'new'", "strategy": "'extra'"}.get(c, c) for c in columns)
+    db.execute(f"INSERT INTO cells SELECT {copied} FROM cells WHERE dataset = 'wine' AND "
+               "strategy = 'forest' AND repeat = 1 AND fold = 2")
     db.execute("INSERT INTO plan SELECT key FROM cells WHERE strategy = 'extra'")
     by_key, by_id = _pandas_match(load_results(reference), load_results(b))
     c = agree_folders(reference, b)

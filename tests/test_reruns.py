@@ -21,9 +21,10 @@ from tests.test_report_html import Page
 
 
 def _mtimes(folder) -> dict:
+    """Modification times of the outputs (not the store, nor the run's lock file)."""
     return {p.relative_to(folder): p.stat().st_mtime_ns
-            for p in folder.rglob("*") if p.is_file() and p.suffix != ".sqlite"
-            and "sqlite" not in p.name}
+            for p in folder.rglob("*") if p.is_file() and "sqlite" not in p.name
+            and p.name != "run.lock"}
 
 
 @pytest.fixture
