@@ -2,9 +2,8 @@
 
 Exit statuses: 0 done; 1 ``agree`` found a score that differs; 2 bad input (suite, data,
 options, folder, a damaged store, a full disk, a results folder in use, two folders ``agree``
-cannot compare); 3 a run finished but
-not one cell of its plan succeeded; 130 stopped by Ctrl-C; 141 the reader of the output went
-away; 143 stopped by SIGTERM.
+cannot compare); 3 a run finished but not one cell of its plan succeeded; 130 stopped by
+Ctrl-C; 141 the reader of the output went away; 143 stopped by SIGTERM.
 """
 
 from __future__ import annotations

@@ -515,16 +515,21 @@ class Store:
         ``datasets``, one row per point: ``dataset, strategy, members, score``."""
         names = list(datasets)
         plan = self._plan_keys()
-        rows = [r for r in self.db.execute(
+        cursor = self.db.execute(
             "SELECT key, dataset, strategy, curve FROM cells WHERE status = 'ok' AND curve IS "
             f"NOT NULL AND dataset IN ({', '.join('?' * len(names))})", names)
-            if not plan or r[0] in plan]
-        curves = _json_list((r[3] for r in rows), "[]")
-        lengths = [len(c) for c in curves]
-        points = np.array([p for c in curves for p in c], dtype=float).reshape(-1, 2)
-        return pd.DataFrame({"dataset": np.repeat([r[1] for r in rows], lengths),
-                             "strategy": np.repeat([r[2] for r in rows], lengths),
-                             "members": points[:, 0].astype(int), "score": points[:, 1]})
+        parts = []
+        while rows := cursor.fetchmany(_CHUNK):  # chunks: the curves as lists are large
+            rows = [r for r in rows if not plan or r[0] in plan]
+            curves = _json_list((r[3] for r in rows), "[]")
+            lengths = [len(c) for c in curves]
+            points = np.array([p for c in curves for p in c], dtype=float).reshape(-1, 2)
+            parts.append(pd.DataFrame({
+                "dataset": np.repeat([r[1] for r in rows], lengths),
+                "strategy": np.repeat([r[2] for r in rows], lengths),
+                "members": points[:, 0].astype(int), "score": points[:, 1]}))
+        return (pd.concat(parts, ignore_index=True) if parts else
+                pd.DataFrame(columns=["dataset", "strategy", "members", "score"]))
 
     @reported
     def match_cells(self, other: "Store") -> CellMatch:

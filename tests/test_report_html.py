@@ -206,6 +206,29 @@ repeats = 1
             assert im.height == round((3.6 * MAX_PANELS / 3 + titles) * DPI), name
 
 
+def test_verdict_pictures_past_two_dozen_pairs_show_the_best_strategys_pairs(write_suite,
+                                                                              tmp_path):
+    from harness import run_suite
+    from harness.report.verdict_plots import MAX_PAIRS
+
+    trees = "".join(f"""
+[[strategy]]
+name = "tree-{leaf}"
+method = "single-tree"
+params = {{ min_samples_leaf = {leaf} }}
+""" for leaf in range(1, 9))  # 8 strategies: 28 pairs
+    body = SMALL_SUITE[:SMALL_SUITE.index("[[strategy]]")].replace("repeats = 2", "repeats = 1")
+    out = run_suite(write_suite(body + trees), out=tmp_path / "out", jobs=2,
+                    progress=False).folder
+    page = Page((out / REPORT_NAME).read_text(encoding="utf-8"))
+    text = squash(page.sections["pictures"]["text"])
+    assert MAX_PAIRS < 28
+    assert "8 strategies make 28 pairs: the pictures show the 7 pairs of the best-ranked " \
+           "strategy" in text
+    with Image.open(out / "plots" / "posterior_triangles.png") as im:
+        assert im.height == round((2.7 * 2 + 0.5) * 110)  # 7 triangles: two rows of four
+
+
 # ------------------------------------------------------------------ a real browser
 
 CHROMIUM = shutil.which("chromium") or shutil.which("chromium-browser")

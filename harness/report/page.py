@@ -101,6 +101,7 @@ class PageContent:
     recommendation_sections: list[tuple[str, list[str]]] = field(default_factory=list)
     status: str = ""  # said at the top when the results are partial
     panels_note: str = ""  # when per-dataset figures show only some of the datasets
+    pairs_note: str = ""   # when the verdict pictures show only some of the pairs
 
 
 # ------------------------------------------------------------------ small helpers
@@ -161,6 +162,7 @@ def _pictures_section(c: PageContent) -> str:
             "practical equivalence, the two being practically equivalent, and the second being "
             "better. A verdict needs one colour to span both dotted lines (at least the "
             "certainty).</p>"
+            + _notes([c.pairs_note] if c.pairs_note else [])
             + _img(c, "probability_bars", "probabilities of each outcome per pair")
             + "<p>The triangles show the same posterior as a cloud of samples: each dot is one "
               "plausible set of the three probabilities; a cloud packed into one corner is a "

@@ -1,13 +1,15 @@
 """Pictures of the across-dataset verdicts, as `matplotlib.figure.Figure` (never pyplot): for
 each pair, the posterior samples of the Bayesian signed-rank test in a triangle (a corner per
 outcome: a better, b better, practically equivalent), and the three probabilities as one
-stacked bar per pair."""
+stacked bar per pair. Past `MAX_PAIRS` pairs both show the pairs of the best-ranked strategy
+only (`drawn_pairs`)."""
 
 from __future__ import annotations
 
 import math
 
 import numpy as np
+import pandas as pd
 from matplotlib.figure import Figure
 
 from harness.analysis.verdict import Verdict
@@ -15,6 +17,18 @@ from harness.report.style import plain
 
 A_COLOUR, EQ_COLOUR, B_COLOUR = "#2e7d32", "#9e9e9e", "#c62828"
 _H = math.sqrt(3) / 2
+# Pairs drawn at most: k strategies make k(k − 1)/2 pairs (300 for 25), whose triangles would
+# take longer to draw than all the rest of the report and make a page too tall to read.
+MAX_PAIRS = 24
+
+
+def drawn_pairs(v: Verdict) -> pd.DataFrame:
+    """The rows of ``v.across`` the pictures show: every pair, or past `MAX_PAIRS` the pairs
+    of the best-ranked strategy (at most `MAX_PAIRS` of them)."""
+    if len(v.across) <= MAX_PAIRS:
+        return v.across
+    a = v.across
+    return a[(a["a"] == v.best) | (a["b"] == v.best)].head(MAX_PAIRS)
 
 
 def _project(samples: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -30,13 +44,14 @@ def triangles(v: Verdict, max_cols: int = 4) -> Figure | None:
     outcome is the most probable)."""
     if v.across is None or not v.posterior:
         return None
-    pairs = list(v.across[["a", "b"]].itertuples(index=False, name=None))
+    drawn = drawn_pairs(v)
+    pairs = list(drawn[["a", "b"]].itertuples(index=False, name=None))
     cols = min(max_cols, len(pairs))
     rows = math.ceil(len(pairs) / cols)
     fig = Figure(figsize=(max(3.0 * cols, 6.0), 2.7 * rows + 0.5))
     axes = list(fig.subplots(rows, cols, squeeze=False).flat)
     centre = (0.5, _H / 3)
-    for ax, (a, b), (_, r) in zip(axes, pairs, v.across.iterrows()):
+    for ax, (a, b), (_, r) in zip(axes, pairs, drawn.iterrows()):
         x, y = _project(v.posterior[(a, b)])
         ax.plot([0, 1, 0.5, 0], [0, 0, _H, 0], color="#444444", linewidth=1)
         for mx, my in ((0.5, 0), (0.25, _H / 2), (0.75, _H / 2)):
@@ -64,7 +79,7 @@ def probability_bars(v: Verdict) -> Figure | None:
     """One horizontal bar per pair: P(a better), P(practically equivalent), P(b better)."""
     if v.across is None or v.across.empty:
         return None
-    a = v.across.iloc[::-1]
+    a = drawn_pairs(v).iloc[::-1]
     labels = [f"{plain(x)}  vs  {plain(y)}" for x, y in zip(a["a"], a["b"])]
     fig = Figure(figsize=(9.0, 1.3 + 0.34 * len(a)))
     ax = fig.subplots()

@@ -12,6 +12,7 @@ import io
 import json
 import time
 from pathlib import Path
+from typing import Iterator
 
 import pandas as pd
 from matplotlib.figure import Figure
@@ -120,22 +121,20 @@ def _dataset_table(datasets: pd.DataFrame, frame: pd.DataFrame,
     return d.reset_index(drop=True)
 
 
-def _verdict_figures(v: Verdict) -> dict[str, Figure]:
+def _verdict_figures(v: Verdict) -> Iterator[tuple[str, Figure | None]]:
+    """The verdict's figures, each made only when the one before has been taken."""
     if not v.tested:
-        return {}
+        return
     n = len(v.matrix)
-    figs = {"critical_difference": cd_figure(v.ranks, v.cd, v.nemenyi_groups,
-                                             f"Nemenyi critical difference, α = {v.alpha:g}, "
-                                             f"{n} datasets"),
-            "wilcoxon_holm_groups": cd_figure(v.ranks, None, v.wilcoxon_groups,
-                                              f"Not told apart by Wilcoxon–Holm, "
-                                              f"α = {v.alpha:g}, {n} datasets")}
-    for name, fig in (("rank_vs_fit_time", plots.rank_vs_fit_time(v.ranks, v.costs, n)),
-                      ("probability_bars", verdict_plots.probability_bars(v)),
-                      ("posterior_triangles", verdict_plots.triangles(v))):
-        if fig is not None:
-            figs[name] = fig
-    return figs
+    yield "critical_difference", cd_figure(v.ranks, v.cd, v.nemenyi_groups,
+                                           f"Nemenyi critical difference, α = {v.alpha:g}, "
+                                           f"{n} datasets")
+    yield "wilcoxon_holm_groups", cd_figure(v.ranks, None, v.wilcoxon_groups,
+                                            f"Not told apart by Wilcoxon–Holm, "
+                                            f"α = {v.alpha:g}, {n} datasets")
+    yield "rank_vs_fit_time", plots.rank_vs_fit_time(v.ranks, v.costs, n)
+    yield "probability_bars", verdict_plots.probability_bars(v)
+    yield "posterior_triangles", verdict_plots.triangles(v)
 
 
 def _gone(run: dict | None) -> dict | None:
@@ -172,7 +171,7 @@ def write_report(folder: str | Path, recommendation: list[str] | None = None,
         state = store.state()
         frame = store.cells_frame(curves=False)
         last = store.last_run()
-        datasets = store.dataset_summaries()
+        summaries = store.dataset_summaries()
         points_frame = store.speedup_frame()
         runs = _computing_runs(store, frame, points_frame)
         panels = list(dict.fromkeys(frame["dataset"]))[:MAX_PANELS] if not frame.empty else []
@@ -190,9 +189,17 @@ def write_report(folder: str | Path, recommendation: list[str] | None = None,
                            "state": r["state"], "command": r["command"],
                            "provenance": r["provenance"]} for r in runs]
     out.files.append(write_text(target / "provenance.json", json.dumps(provenance, indent=2)))
-    figures: dict[str, Figure] = {}
+    images: dict[str, bytes] = {}
+
+    def draw(name: str, fig: Figure | None) -> None:
+        """Keep the figure as PNG bytes and let it go (big figures take much memory)."""
+        if fig is not None:
+            images[name] = png(fig, dpi=150 if name in ("critical_difference",
+                                                        "wilcoxon_holm_groups") else DPI)
+
     found: list[Table] = []
-    n_datasets = frame["dataset"].nunique() if not frame.empty else 0
+    n_cells, n_datasets = len(frame), frame["dataset"].nunique() if not frame.empty else 0
+    n_strategies = frame["strategy"].nunique() if not frame.empty else 0
     if not frame.empty:
         v = verdict(frame, provenance.get("metrics"),
                     Equivalence.from_settings(provenance.get("equivalence")))
@@ -206,16 +213,19 @@ def write_report(folder: str | Path, recommendation: list[str] | None = None,
                       tables.ranks(v, frame)]
             if v.tested:
                 found += [tables.tests(v), tables.pairs_across(v)]
-        figures.update(_verdict_figures(v))
         out.files.append(write_text(target / SUMMARY_NAME, "# The short answer\n\n" + "".join(
             f"{md_text(s)}\n\n" for s in words.bottom_line(v)) + "## Details\n\n" + "".join(
             f"- {md_text(s)}\n" for s in words.details(v))))
         shown = frame[frame["dataset"].isin(panels)]
-        for name, fig in (("score_vs_fit_time", plots.score_vs_fit_time(
-                              strategy_means(shown, v.primary))),
-                          ("ensemble_size", plots.size_curves(curves, v.primary, shown))):
-            if fig is not None:
-                figures[name] = fig
+        dataset_table = _dataset_table(summaries, frame, v)
+        del frame  # the biggest frame is not needed past here
+        for name, fig in _verdict_figures(v):
+            draw(name, fig)
+        draw("score_vs_fit_time", plots.score_vs_fit_time(strategy_means(shown, v.primary)))
+        draw("ensemble_size", plots.size_curves(curves, v.primary, shown))
+        del shown, curves
+    else:
+        dataset_table = pd.DataFrame()
     if not points_frame.empty:
         settings = [r["provenance"]["speedup"] for r in runs
                     if r["points"] and r["provenance"].get("speedup")]
@@ -224,36 +234,38 @@ def write_report(folder: str | Path, recommendation: list[str] | None = None,
         found += [tables.speedup_points(points, settings, margin),
                   tables.serial_fraction(fits)]
         out.speedup = tables.speedup_summary(points, fits)
-        for name, fig in (("speedup", speedup_plots.speedup_plot(points, fits)),
-                          ("fit_time_vs_workers", speedup_plots.fit_time_plot(points, fits))):
-            if fig is not None:
-                figures[name] = fig
+        draw("speedup", speedup_plots.speedup_plot(points, fits))
+        draw("fit_time_vs_workers", speedup_plots.fit_time_plot(points, fits))
     for t in found:
         out.tables[t.name] = t
         out.files.append(write_text(target / "tables" / f"{t.name}.csv",
                                     t.data.to_csv(index=False)))
         out.files.append(write_text(target / "tables" / f"{t.name}.md", to_markdown(t)))
-    images = {name: png(fig, dpi=150 if name in ("critical_difference",
-                                                 "wilcoxon_holm_groups") else DPI)
-              for name, fig in figures.items()}
     for name, data in images.items():
         out.files.append(write_bytes(target / "plots" / f"{name}.png", data))
     content = PageContent(
         suite=(run or {}).get("suite") or folder.name,
-        version=provenance.get("libraries", {}).get("woodlot", ""), n_cells=len(frame),
-        n_datasets=n_datasets,
-        n_strategies=frame["strategy"].nunique() if not frame.empty else 0,
-        verdict=out.verdict, tables=out.tables, images=images,
-        datasets=_dataset_table(datasets, frame, out.verdict),
+        version=provenance.get("libraries", {}).get("woodlot", ""), n_cells=n_cells,
+        n_datasets=n_datasets, n_strategies=n_strategies,
+        verdict=out.verdict, tables=out.tables, images=images, datasets=dataset_table,
         failures=out.tables["failures"].data if "failures" in out.tables else pd.DataFrame(),
-        provenance=_provenance_rows(run, len(frame), folder), runs=_runs_table(runs),
+        provenance=_provenance_rows(run, n_cells, folder), runs=_runs_table(runs),
         suite_text=(run or {}).get("suite_text") or "", has_speedup=not points_frame.empty,
         recommendation=recommendation or [],
         recommendation_sections=recommendation_sections or [], status=status,
-        panels_note=_panels_note(n_datasets))
+        panels_note=_panels_note(n_datasets), pairs_note=_pairs_note(out.verdict))
     out.files.append(write_text(target / REPORT_NAME, render(content)))
     write_text(target / STATE_NAME, state_text(state, target, out.files, partial=bool(status)))
     return out
+
+
+def _pairs_note(v: Verdict | None) -> str:
+    if v is None or v.across is None or len(v.across) <= verdict_plots.MAX_PAIRS:
+        return ""
+    return (f"{len(v.ranks)} strategies make {len(v.across)} pairs: the pictures show the "
+            f"{len(verdict_plots.drawn_pairs(v))} pairs of the best-ranked strategy, {v.best} "
+            "(more would take longer to draw than the rest of the report and be too tall to "
+            "read); tables/pairs_across.csv has every pair.")
 
 
 def _panels_note(n_datasets: int) -> str:
