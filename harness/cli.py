@@ -71,6 +71,9 @@ def _outcome(outputs) -> None:
     if outputs.verdict is not None:
         print("\nIn short (details in summary.md and report.html):\n"
               + "\n".join(f"- {s}" for s in words.bottom_line(outputs.verdict)) + "\n")
+    if outputs.tuning:
+        print("What tuning buys (details in report.html):\n"
+              + "\n".join(f"- {s}" for s in outputs.tuning) + "\n")
 
 
 def _run(args) -> int:
@@ -82,6 +85,7 @@ def _run(args) -> int:
                        retry_failed=args.retry_failed, progress=False if args.quiet else None,
                        command=_command_line(), wait=args.wait_for_folder)
     print(f"{result.planned} cells planned: {result.reused} already stored, {result.ran} run"
+          + (f" ({result.trials} trials of tuned strategies' searches)" if result.trials else "")
           + (f", {result.failed} failed (see tables/failures.md)" if result.failed else "") + ".")
     _outcome(result.outputs)
     print(f"Results in {result.folder}/ (report.html, tables/, plots/, cells.sqlite)")

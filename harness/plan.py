@@ -1,16 +1,19 @@
 """From a validated suite to loaded datasets and the units of work: the cells of the accuracy
-comparison and the speedup points, each with its key."""
+comparison (a tuned strategy's cells are searches, `harness.search`) and the speedup
+points, each with its key. Strategies are checked here against the estimator of each task
+the loaded datasets have."""
 
 from __future__ import annotations
 
 import socket
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 from harness import provenance
 from harness.datasets import Dataset, Split, load_dataset
 from harness.preprocess import pipeline_text
+from harness.search import Search, configurations
 from harness.splits import make_splits, split_id
-from harness.strategies import Strategy
+from harness.strategies import Strategy, check_for_task
 from harness.suite import SpeedupSettings, Suite
 from harness.versions import (CELL_CODE, SPEEDUP_CODE, estimator_distribution,
                               result_versions)
@@ -25,8 +28,14 @@ class Plan:
     suite: Suite
     datasets: dict[str, Dataset]  # by name
     splits: dict[str, list[Split]]
-    cells: list[Cell]
+    cells: list[Cell]               # of untuned strategies
     skipped: list[tuple[str, str]]  # (strategy, dataset) pairs with no estimator for the task
+    searches: list[Search] = field(default_factory=list)  # one per tuned cell
+
+    @property
+    def keys(self) -> list[str]:
+        """The keys of every cell of the comparison, tuned cells included."""
+        return [c.key for c in self.cells] + [s.key for s in self.searches]
 
     @property
     def by_fingerprint(self) -> dict[str, Dataset]:
@@ -51,7 +60,8 @@ def make_plan(suite: Suite, datasets: dict[str, Dataset] | None = None) -> Plan:
     datasets = datasets if datasets is not None else load_datasets(suite)
     p = suite.protocol
     extras = suite.also_measure.settings()
-    cells, skipped, all_splits = [], [], {}
+    cells, skipped, all_splits, searches = [], [], {}, []
+    checked: set[tuple[str, str]] = set()
     for spec in suite.datasets:
         ds = datasets[spec.name]
         splits = make_splits(ds, p, spec.where)
@@ -64,26 +74,39 @@ def make_plan(suite: Suite, datasets: dict[str, Dataset] | None = None) -> Plan:
             if not strategy.supports(ds.task):
                 skipped.append((strategy.name, ds.name))
                 continue
+            if (strategy.name, ds.task) not in checked:
+                check_for_task(strategy, ds.task, ds.name)
+                checked.add((strategy.name, ds.task))
             estimator = pipeline_text(strategy, ds, p.seed)
             versions = versions_for(strategy, ds.task)
+            settings = {"metrics": list(metrics), "also_measure": extras, "threads": 1,
+                        "strategy": strategy.name, **one_split}
+            tuning = strategy.tuning
+            if tuning is not None:
+                configs = configurations(tuning, ds.task, p.seed)
+                settings_t = {**settings, "tuning": tuning.canonical(ds.task)}
             for s in splits:
                 key = unit_key(fingerprint=ds.fingerprint, estimator=estimator, train=s.train,
                                test=s.test, versions=versions,
-                               settings={"metrics": list(metrics), "also_measure": extras,
-                                         "threads": 1, "strategy": strategy.name,
-                                         **one_split})
-                cells.append(Cell(key=key, dataset=ds.name, fingerprint=ds.fingerprint,
-                                  task=ds.task, strategy=strategy, repeat=s.repeat, fold=s.fold,
-                                  train=s.train, test=s.test, metrics=metrics, seed=p.seed,
-                                  row_evidence=bool(one_split), **extras))
-    return Plan(suite, datasets, all_splits, cells, skipped)
+                               settings=settings if tuning is None else settings_t)
+                cell = Cell(key=key, dataset=ds.name, fingerprint=ds.fingerprint,
+                            task=ds.task, strategy=strategy, repeat=s.repeat, fold=s.fold,
+                            train=s.train, test=s.test, metrics=metrics, seed=p.seed,
+                            row_evidence=bool(one_split), **extras)
+                if tuning is None:
+                    cells.append(cell)
+                else:
+                    searches.append(Search(cell, tuning, configs,
+                                           {"versions": versions, "settings": settings}))
+    return Plan(suite, datasets, all_splits, cells, skipped, searches)
 
 
 def cell_splits(plan: Plan) -> list[tuple[str, str]]:
     """(cell key, split id) for every cell of the plan: which rows trained and tested it."""
     ids = {(name, s.repeat, s.fold): split_id(s.train, s.test)
            for name, splits in plan.splits.items() for s in splits}
-    return [(c.key, ids[(c.dataset, c.repeat, c.fold)]) for c in plan.cells]
+    return [(c.key, ids[(c.dataset, c.repeat, c.fold)])
+            for c in [*plan.cells, *(x.cell for x in plan.searches)]]
 
 
 def usable_cores() -> int:

@@ -9,6 +9,12 @@
 - A change counter (``meta`` row ``changes``, kept by triggers) moves with every write the
   report reads, so outputs written from one state of the store are known to be up to date.
 - The write-ahead log is checkpointed as cells arrive, so it stays small during a long run.
+- Searches of tuned strategies (`harness.search`) have tables of their own: ``trials`` (one
+  row per configuration scored on the inner splits) and ``refits`` (a configuration refit on
+  the outer training rows), both keyed by (search, unit key) where the search is the key of
+  its tuned cell; ``tuned`` holds, per tuned cell, the chosen configuration and the cost of
+  the search and of the refit. A tuned cell's row in ``cells`` is composed from its last
+  refit, with the search's fit time added, in the same transaction as its ``tuned`` row.
 """
 
 from __future__ import annotations
@@ -52,12 +58,24 @@ CREATE TABLE IF NOT EXISTS speedup (
     predict_seconds REAL, predict_rows_per_second REAL, other_load REAL, limits TEXT,
     host TEXT, finished REAL);
 CREATE TABLE IF NOT EXISTS speedup_plan (key TEXT PRIMARY KEY);
+CREATE TABLE IF NOT EXISTS trials (
+    search TEXT, key TEXT, run INTEGER, dataset TEXT, strategy TEXT, repeat INTEGER,
+    fold INTEGER, trial INTEGER, round INTEGER, rows INTEGER, config TEXT, status TEXT,
+    message TEXT, detail TEXT, inner_scores TEXT, inner_score REAL, fit_seconds REAL,
+    fit_cpu_seconds REAL, worker TEXT, seconds REAL, finished REAL, PRIMARY KEY (search, key));
+CREATE TABLE IF NOT EXISTS refits (
+    search TEXT, key TEXT, run INTEGER, trial INTEGER, status TEXT, row TEXT, finished REAL,
+    PRIMARY KEY (search, key));
+CREATE TABLE IF NOT EXISTS tuned (
+    key TEXT PRIMARY KEY, run INTEGER, search_kind TEXT, budget TEXT, trials INTEGER,
+    chosen INTEGER, configuration TEXT, inner_score REAL, search_seconds REAL,
+    search_cpu_seconds REAL, refit_seconds REAL, refit_cpu_seconds REAL, finished REAL);
 """
 
 # Tables whose every insert, update and delete moves the change counter; the runs table moves
 # it only for runs that stored cells or speedup points (a rerun that fits nothing leaves the
 # store's state, and so the outputs, as they were).
-_COUNTED = ("cells", "plan", "speedup", "speedup_plan", "datasets")
+_COUNTED = ("cells", "plan", "speedup", "speedup_plan", "datasets", "trials", "refits", "tuned")
 _BUMP = "UPDATE meta SET value = CAST(value AS INTEGER) + 1 WHERE key = 'changes';"
 _STATE = "\n".join(
     [f"CREATE TRIGGER IF NOT EXISTS changes_{t}_{op.lower()} AFTER {op} ON {t} BEGIN {_BUMP} END;"
@@ -75,6 +93,17 @@ _STATE = "\n".join(
 WAL_PAGES = 128
 WAL_LIMIT = WAL_PAGES * 4096
 _CHUNK = 10_000  # rows read at a time into a frame
+
+SEARCH_TABLES = ("trials", "refits", "tuned")
+_TRIAL_COLUMNS = ("search", "key", "run", "dataset", "strategy", "repeat", "fold", "trial",
+                  "round", "rows", "config", "status", "message", "detail", "inner_scores",
+                  "inner_score", "fit_seconds", "fit_cpu_seconds", "worker", "seconds",
+                  "finished")
+_TUNED_COLUMNS = ("key", "run", "search_kind", "budget", "trials", "chosen", "configuration",
+                  "inner_score", "search_seconds", "search_cpu_seconds", "refit_seconds",
+                  "refit_cpu_seconds", "finished")
+# the columns `cells_frame` adds to every cell from ``tuned`` (empty for untuned strategies)
+TUNED_FRAME_COLUMNS = ("tuned", "search_seconds", "refit_seconds", "trials", "configuration")
 
 # speedup points: one row per timed repeat
 _SPEEDUP_COLUMNS = ("run", "key", "dataset", "strategy", "family", "method", "task", "workers",
@@ -309,6 +338,8 @@ class Store:
     def _check_columns(self) -> None:
         for table, columns in expected_columns().items():
             found = {r[1] for r in self.db.execute(f"PRAGMA table_info({table})")}
+            if not found and table in SEARCH_TABLES:
+                continue  # a store written before tuning existed, opened read-only
             missing = [c for c in columns if c not in found]
             if missing:
                 what = f"has no table '{table}'" if not found else \
@@ -445,6 +476,11 @@ class Store:
     @reported
     def put(self, row: dict[str, Any], run: int) -> None:
         """Write one finished cell in its own transaction."""
+        with self.db:
+            self.db.execute("BEGIN IMMEDIATE")
+            self._insert_cell(row, run)
+
+    def _insert_cell(self, row: dict[str, Any], run: int) -> None:
         values = dict(row)
         values["run"] = run
         values["finished"] = time.time()
@@ -452,10 +488,107 @@ class Store:
             if values.get(k) is not None:
                 values[k] = json.dumps(values[k])
         params = [values.get(c) for c in _CELL_COLUMNS]
+        self.db.execute(f"INSERT OR REPLACE INTO cells ({', '.join(_CELL_COLUMNS)}) "
+                        f"VALUES ({', '.join('?' * len(_CELL_COLUMNS))})", params)
+
+    # ------------------------------------------------------------------ searches
+    def put_trial(self, row: dict[str, Any], run: int) -> None:
+        """Write one finished trial (keyed by its search and its key) in its own
+        transaction."""
+        v = {**row, "run": run, "finished": time.time()}
+        for k in ("config", "inner_scores"):
+            if v.get(k) is not None:
+                v[k] = json.dumps(v[k])
+        cols = _TRIAL_COLUMNS
         with self.db:
             self.db.execute("BEGIN IMMEDIATE")
-            self.db.execute(f"INSERT OR REPLACE INTO cells ({', '.join(_CELL_COLUMNS)}) "
-                            f"VALUES ({', '.join('?' * len(_CELL_COLUMNS))})", params)
+            self.db.execute(f"INSERT OR REPLACE INTO trials ({', '.join(cols)}) VALUES "
+                            f"({', '.join('?' * len(cols))})", [v.get(c) for c in cols])
+
+    def put_refit(self, search: str, trial: int, row: dict[str, Any], run: int) -> None:
+        """Write one refit (a cell's row) of a search in its own transaction."""
+        with self.db:
+            self.db.execute("BEGIN IMMEDIATE")
+            self.db.execute("INSERT OR REPLACE INTO refits VALUES (?, ?, ?, ?, ?, ?, ?)",
+                            (search, row["key"], run, trial, row["status"],
+                             json.dumps(row, default=str), time.time()))
+
+    def put_tuned(self, cell_row: dict[str, Any], tuned: dict[str, Any], run: int) -> None:
+        """Write a tuned cell and what its search chose, in one transaction."""
+        v = {**tuned, "key": cell_row["key"], "run": run, "finished": time.time()}
+        if v.get("configuration") is not None:
+            v["configuration"] = json.dumps(v["configuration"])
+        cols = _TUNED_COLUMNS
+        with self.db:
+            self.db.execute("BEGIN IMMEDIATE")
+            self._insert_cell(cell_row, run)
+            self.db.execute(f"INSERT OR REPLACE INTO tuned ({', '.join(cols)}) VALUES "
+                            f"({', '.join('?' * len(cols))})", [v.get(c) for c in cols])
+
+    def stored_trials(self, keys: Iterable[str], *, include_failed: bool = True
+                      ) -> dict[str, dict[str, Any]]:
+        """Unit key → a stored trial with that key (of any search: the same key is the same
+        computation)."""
+        out = {}
+        for r in self._by_keys("trials", keys, include_failed):
+            r["config"] = json.loads(r["config"]) if r["config"] else {}
+            r["inner_scores"] = json.loads(r["inner_scores"]) if r["inner_scores"] else None
+            out[r["key"]] = r
+        return out
+
+    def stored_refits(self, keys: Iterable[str], *, include_failed: bool = True
+                      ) -> dict[str, dict[str, Any]]:
+        """Unit key → ``{"row": the refit's row, "searches": the searches that have it}``."""
+        out: dict[str, dict[str, Any]] = {}
+        for r in self._by_keys("refits", keys, include_failed):
+            found = out.setdefault(r["key"], {"row": json.loads(r["row"]), "searches": set()})
+            found["searches"].add(r["search"])
+        return out
+
+    def _by_keys(self, table: str, keys: Iterable[str], include_failed: bool
+                 ) -> list[dict[str, Any]]:
+        keys = list(keys)
+        rows = []
+        for i in range(0, len(keys), 500):
+            part = keys[i:i + 500]
+            sql = (f"SELECT * FROM {table} WHERE key IN ({', '.join('?' * len(part))})"
+                   + ("" if include_failed else " AND status='ok'"))
+            rows += self._rows(sql, part)
+        return rows
+
+    def _has(self, table: str) -> bool:
+        return self.db.execute("SELECT 1 FROM sqlite_master WHERE type='table' AND name=?",
+                               (table,)).fetchone() is not None
+
+    def _rows(self, sql: str, params=()) -> list[dict[str, Any]]:
+        cur = self.db.execute(sql, params)
+        names = [d[0] for d in cur.description]
+        return [dict(zip(names, r)) for r in cur.fetchall()]
+
+    def _in_plan(self, column: str) -> str:
+        if self.db.execute("SELECT COUNT(*) FROM plan").fetchone()[0]:
+            return f" WHERE {column} IN (SELECT key FROM plan)"
+        return ""
+
+    def trials_frame(self) -> pd.DataFrame:
+        """One row per trial of the searches of the latest plan."""
+        frame = pd.read_sql_query("SELECT * FROM trials" + self._in_plan("search")
+                                  + " ORDER BY search, round, trial", self.db)
+        for k in ("config", "inner_scores"):
+            frame[k] = [json.loads(v) if isinstance(v, str) else None for v in frame[k]]
+        return frame
+
+    def refits_frame(self) -> pd.DataFrame:
+        """One row per refit of the searches of the latest plan: ``search, trial`` and the
+        refit's cell columns (one per metric named after its scorer)."""
+        got = self.db.execute("SELECT search, trial, row FROM refits" + self._in_plan("search")
+                              ).fetchall()
+        rows = []
+        for search, trial, row in got:
+            r = json.loads(row)
+            scores = r.pop("scores", None) or {}
+            rows.append({**r, **scores, "search": search, "trial": trial})
+        return pd.DataFrame(rows)
 
     @reported
     def set_speedup_plan(self, keys: Iterable[str]) -> None:
@@ -504,7 +637,20 @@ class Store:
         if curves:
             frame["curve"] = [parsed["curve"][i] for i in order]
         metrics = pd.DataFrame([parsed["scores"][i] for i in order])
-        return pd.concat([frame[table], metrics], axis=1)
+        frame = frame[table].merge(self._tuned_columns(), on="key", how="left")
+        frame["tuned"] = frame["tuned"].eq(True)
+        return pd.concat([frame, metrics], axis=1)
+
+    def _tuned_columns(self) -> pd.DataFrame:
+        """Per tuned cell: `TUNED_FRAME_COLUMNS` (and its key)."""
+        cols = ["key", "search_seconds", "refit_seconds", "trials", "configuration"]
+        if not self._has("tuned"):
+            return pd.DataFrame(columns=[*cols, "tuned"])
+        tuned = pd.read_sql_query(f"SELECT {', '.join(cols)} FROM tuned", self.db)
+        tuned["configuration"] = [json.loads(c) if isinstance(c, str) else None
+                                  for c in tuned["configuration"]]
+        tuned["tuned"] = True
+        return tuned
 
     def _plan_keys(self) -> set[str]:
         return {k for (k,) in self.db.execute("SELECT key FROM plan")}

@@ -1,8 +1,14 @@
 """The catalogue of ensemble methods and any scikit-learn-compatible estimator by import path.
 
-A strategy names a method (or an import path) and its parameters; it resolves to a classifier
-or a regressor by the dataset's task. Every strategy carries a family tag used to group
-results: ``single tree``, ``bagging``, ``forest``, ``boosting`` (or the user's own word).
+A strategy names a method (or an import path) and its parameters (common to both tasks, plus
+per-task ones); it resolves to a classifier or a regressor by the dataset's task, and may
+carry a `harness.spaces.Tuning`. Every strategy carries a family tag used to group results:
+``single tree``, ``bagging``, ``forest``, ``boosting`` (or the user's own word).
+
+Parameters are checked in two steps: when the suite is read, every name must exist in an
+estimator the strategy has (`resolve`); once the datasets are loaded, names and values are
+checked against the estimator of each task the suite has (`check_for_task`), so a
+classifier-only parameter is fine in a suite of classification datasets.
 """
 
 from __future__ import annotations
@@ -22,8 +28,10 @@ from sklearn.ensemble import (AdaBoostClassifier, AdaBoostRegressor, BaggingClas
 from sklearn.tree import DecisionTreeClassifier, DecisionTreeRegressor
 
 from harness.errors import UserError, closest
+from harness.spaces import Tuning
 
 SINGLE_TREE, BAGGING, FOREST, BOOSTING = "single tree", "bagging", "forest", "boosting"
+TASKS = ("classification", "regression")
 
 
 @dataclass(frozen=True)
@@ -63,6 +71,19 @@ class Strategy:
     classifier: str | None  # import path "module:Class"
     regressor: str | None
     params: dict[str, Any] = field(default_factory=dict)
+    task_params: dict[str, dict[str, Any]] = field(default_factory=dict)  # task -> params
+    tuning: Tuning | None = None
+    where: str = field(default="", compare=False)  # the suite entry, for messages
+
+    def params_for(self, task: str) -> dict[str, Any]:
+        """The parameters set for ``task``: the common ones, then the task's own."""
+        return {**self.params, **self.task_params.get(task, {})}
+
+    def configured(self, config: dict[str, Any], task: str) -> "Strategy":
+        """This strategy with ``config`` set on top of its parameters for ``task`` (one
+        configuration of a search), untuned."""
+        return Strategy(self.name, self.family, self.method, self.classifier, self.regressor,
+                        {**self.params_for(task), **config}, {}, None, self.where)
 
     def supports(self, task: str) -> bool:
         return self.estimator_path(task) is not None
@@ -85,9 +106,10 @@ class Strategy:
             defaults = m.classifier_defaults if task == "classification" else m.regressor_defaults
         est.set_params(**{k: clone(v) if hasattr(v, "get_params") else v
                           for k, v in defaults.items()})
-        est.set_params(**self.params)
+        params = self.params_for(task)
+        est.set_params(**params)
         if seed is not None and "random_state" in est.get_params() \
-                and "random_state" not in self.params:
+                and "random_state" not in params:
             est.set_params(random_state=seed)
         return est
 
@@ -130,14 +152,47 @@ def class_path(cls: type) -> str:
     return f"{module}:{cls.__qualname__}"
 
 
-def resolve(entry: dict[str, Any], where: str) -> list[Strategy]:
+def split_by_task(table: dict[str, Any], where: str, field_name: str
+                  ) -> tuple[dict[str, Any], dict[str, dict[str, Any]]]:
+    """(common entries, task -> entries) of a ``params`` or ``tune`` table whose
+    ``classification`` and ``regression`` sub-tables hold what applies to one task only."""
+    common, per_task = {}, {}
+    for key, value in table.items():
+        if key in TASKS:
+            if not isinstance(value, dict):
+                raise UserError(f"'{key}' holds the parameters for {key} datasets only: "
+                                "expected a table", file=where, field=f"{field_name}.{key}")
+            per_task[key] = dict(value)
+        else:
+            common[key] = value
+    return common, per_task
+
+
+def _accepted(path: str, method: str, task: str) -> dict[str, Any]:
+    """Every parameter name (nested ones included) of the estimator at ``path`` with the
+    catalogue's defaults for ``task`` set."""
+    est = import_path(path)()
+    if method in CATALOGUE:
+        m = CATALOGUE[method]
+        est.set_params(**(m.classifier_defaults if task == "classification"
+                          else m.regressor_defaults))
+    return est.get_params(deep=True)
+
+
+def _short(path: str) -> str:
+    return path.split(":")[-1]
+
+
+def resolve(entry: dict[str, Any], where: str, tuning: Tuning | None = None) -> list[Strategy]:
     """Turn one ``[[strategy]]`` table into strategies (several when it has a ``grid``).
 
-    Checks the method (or import paths), that every parameter is one the estimator accepts
-    (nested ``estimator__max_depth`` style included) and that scikit-learn accepts its value.
+    Checks the method (or import paths) and that every parameter name (nested
+    ``estimator__max_depth`` style included; tuned ones too) exists in an estimator the
+    strategy has for the task it is given for. Values are checked per task once the datasets
+    are known (`check_for_task`).
     """
     name = entry["name"]
-    params = dict(entry.get("params", {}))
+    params, task_params = split_by_task(dict(entry.get("params", {})), where, "params")
     method = entry.get("method")
     if method is not None:
         if method not in CATALOGUE:
@@ -145,7 +200,7 @@ def resolve(entry: dict[str, Any], where: str) -> list[Strategy]:
                             f"has {', '.join(CATALOGUE)}", file=where, field="method")
         m = CATALOGUE[method]
         base = Strategy(name, entry.get("family", m.family), method, class_path(m.classifier),
-                        class_path(m.regressor), params)
+                        class_path(m.regressor), params, task_params, tuning, where)
     else:
         paths = {}
         for key in ("classifier", "regressor"):
@@ -163,7 +218,8 @@ def resolve(entry: dict[str, Any], where: str) -> list[Strategy]:
             raise UserError("give either 'method' (a catalogue name) or 'classifier' and/or "
                             "'regressor' (import paths)", file=where, field="method")
         base = Strategy(name, entry.get("family", "other"), "custom", paths.get("classifier"),
-                        paths.get("regressor"), params)
+                        paths.get("regressor"), params, task_params, tuning, where)
+    _check_names(base, where)
     grid = entry.get("grid", {})
     variants = [base]
     if grid:
@@ -173,31 +229,72 @@ def resolve(entry: dict[str, Any], where: str) -> list[Strategy]:
             combo = dict(zip(keys, values))
             label = ",".join(f"{k}={v}" for k, v in combo.items())
             variants.append(Strategy(f"{name}[{label}]", base.family, base.method, base.classifier,
-                                     base.regressor, {**params, **combo}))
-    for v in variants:
-        for task in ("classification", "regression"):
-            if v.supports(task):
-                _check_params(v, task, where)
+                                     base.regressor, {**params, **combo}, task_params, None,
+                                     where))
+        _check_names(variants[0], where)
     return variants
 
 
-def _check_params(strategy: Strategy, task: str, where: str) -> None:
-    path = strategy.classifier if task == "classification" else strategy.regressor
-    est = import_path(path)()
-    accepted = est.get_params(deep=True)
-    if strategy.method in CATALOGUE:
-        m = CATALOGUE[strategy.method]
-        est.set_params(**(m.classifier_defaults if task == "classification"
-                          else m.regressor_defaults))
-        accepted = est.get_params(deep=True)
-    for key in strategy.params:
+def _check_names(strategy: Strategy, where: str) -> None:
+    """Every parameter name (set or tuned) exists in an estimator of a task it applies to."""
+    tasks = [t for t in TASKS if strategy.supports(t)]
+    accepted = {t: _accepted(strategy.estimator_path(t), strategy.method, t) for t in tasks}
+    tuning = strategy.tuning
+    checks = [("params", k, None) for k in strategy.params]
+    checks += [("params", k, t) for t, ps in strategy.task_params.items() for k in ps]
+    if tuning is not None:
+        checks += [("tune", k, None) for k in tuning.space]
+        checks += [("tune", k, t) for t, sp in tuning.task_space.items() for k in sp]
+    for table, key, task in checks:
+        field_name = f"{table}.{task}.{key}" if task else f"{table}.{key}"
+        if task is not None and task not in accepted:
+            raise UserError(f"this strategy has no estimator for {task}", file=where,
+                            field=field_name)
+        among = [task] if task else tasks
+        if not any(key in accepted[t] for t in among):
+            names = " nor ".join(_short(strategy.estimator_path(t)) for t in among)
+            known = set().union(*(accepted[t] for t in among))
+            raise UserError(f"{'neither ' if len(among) > 1 else ''}{names} has "
+                            f"{'a ' if len(among) > 1 else 'no '}parameter '{key}'"
+                            f"{closest(key, known)}", file=where, field=field_name)
+
+
+def check_for_task(strategy: Strategy, task: str, dataset: str) -> None:
+    """Check the strategy's parameters (and the ends of each tuned range) against the
+    estimator of ``task``, as met on ``dataset``; `UserError` names the estimator that
+    refused and the task."""
+    path = strategy.estimator_path(task)
+    where = strategy.where
+    who = f"{_short(path)} (the {task} estimator, for dataset '{dataset}')"
+    accepted = _accepted(path, strategy.method, task)
+    for key in strategy.params_for(task):
         if key not in accepted:
-            raise UserError(f"{path.split(':')[-1]} has no parameter '{key}'"
-                            f"{closest(key, accepted)}", file=where, field=f"params.{key}")
+            raise UserError(f"{who} has no parameter '{key}'{closest(key, accepted)}; give "
+                            f"it under params.{_other(task)} if it is meant for "
+                            f"{_other(task)} only", file=where, field=f"params.{key}")
+    _validate(strategy, task, who, where, "params")
+    if strategy.tuning is None:
+        return
+    for key, rng in strategy.tuning.space_for(task).items():
+        if key not in accepted:
+            raise UserError(f"{who} has no parameter '{key}'{closest(key, accepted)}",
+                            file=where, field=f"tune.{key}")
+        for end in rng.ends():
+            _validate(strategy.configured({key: end}, task), task, who, where, f"tune.{key}")
+
+
+def _other(task: str) -> str:
+    return TASKS[1 - TASKS.index(task)]
+
+
+def _validate(strategy: Strategy, task: str, who: str, where: str, field_name: str) -> None:
     try:
         est = strategy.build(task, 0)
         if hasattr(est, "_validate_params") and hasattr(est, "_parameter_constraints"):
             est._validate_params()
     except (TypeError, ValueError) as exc:
-        raise UserError(f"{path.split(':')[-1]} refuses these parameters: "
-                        f"{str(exc).splitlines()[0]}", file=where, field="params") from None
+        what = "these parameters" if field_name == "params" else "a value of this range"
+        hint = (f" (a value meant for {_other(task)} only goes under params.{_other(task)})"
+                if field_name == "params" and strategy.supports(_other(task)) else "")
+        raise UserError(f"{who} refuses {what}{hint}: {str(exc).splitlines()[0]}", file=where,
+                        field=field_name) from None

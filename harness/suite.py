@@ -20,14 +20,15 @@ from harness.datasets.openml import expand_benchmark_suite
 from harness.errors import UserError, closest
 from harness.names import RULE, is_name
 from harness.scorers import Margin, default_margin, metric_task
-from harness.strategies import Strategy, resolve
+from harness.spaces import HALVING, SEARCHES, Tuning, default_space, parse_range
+from harness.strategies import Strategy, resolve, split_by_task
 
 KFOLD, HOLDOUT, PUBLISHED = "k-fold", "holdout", "published"
 SPLIT_SCHEMES = (KFOLD, HOLDOUT, PUBLISHED)
 DEFAULT_METRICS = {"classification": ("accuracy", "balanced_accuracy", "neg_log_loss"),
                    "regression": ("neg_root_mean_squared_error", "r2")}
-SECTIONS = ("suite", "protocol", "also_measure", "equivalence", "dataset", "strategy",
-            "speedup")
+SECTIONS = ("suite", "protocol", "also_measure", "equivalence", "tuning", "dataset",
+            "strategy", "speedup")
 DATA_SUFFIXES = (".csv", ".tsv", ".txt", ".parquet", ".pq")
 DEFAULT_CERTAINTY = 0.95
 SEED_MAX = 2**32 - 1  # NumPy's RandomState, which scikit-learn seeds, takes 0 .. 2**32 - 1
@@ -98,6 +99,21 @@ class SpeedupSettings:
 
 
 @dataclass(frozen=True)
+class TuningSettings:
+    """The ``[tuning]`` section: the search every tuned strategy gets unless its entry says
+    otherwise (equal budgets). With the section present every strategy is tuned unless its
+    entry says ``tune = false``."""
+
+    present: bool = False
+    budget_trials: int | None = 20
+    budget_seconds: float | None = None
+    inner_folds: int = 3
+    search: str = "random"
+    factor: int = 3
+    max_trials: int = 100
+
+
+@dataclass(frozen=True)
 class Suite:
     path: Path
     name: str
@@ -109,6 +125,7 @@ class Suite:
     strategies: tuple[Strategy, ...]
     speedup: SpeedupSettings | None
     text: str
+    tuning: TuningSettings = field(default_factory=TuningSettings)
 
     def strategy(self, name: str) -> Strategy:
         return next(s for s in self.strategies if s.name == name)
@@ -130,9 +147,15 @@ _SPEEDUP_KEYS = {"workers": (list, "list of whole numbers"), "repeats": (int, "w
                  "strategies": (list, "list of strategy names"),
                  "noise_margin": ((float, int), "number")}
 _SUITE_KEYS = {"name": (str, "text"), "description": (str, "text")}
+_BUDGET = ((int, str), "number of trials or a duration such as \"2m\"")
+_TUNING_KEYS = {"budget": _BUDGET, "inner_folds": (int, "whole number"),
+                "search": (str, "\"random\" or \"halving\""),
+                "factor": (int, "whole number"), "max_trials": (int, "whole number")}
 _STRATEGY_KEYS = {"name": (str, "text"), "method": (str, "text"), "classifier": (str, "text"),
                   "regressor": (str, "text"), "family": (str, "text"), "params": (dict, "table"),
-                  "grid": (dict, "table of lists"), "description": (str, "text")}
+                  "grid": (dict, "table of lists"), "description": (str, "text"),
+                  "tune": ((bool, dict), "true, false or a table of ranges"),
+                  "tune_budget": _BUDGET}
 
 
 def parse_duration(value: Any, where: str, key: str) -> float | None:
@@ -260,15 +283,94 @@ def load_suite(path: str | Path, *, expand: bool = True) -> Suite:
         raise UserError(f"must be between 2 and 1000, got {also.curve_points}",
                         file=f"{path}: [also_measure]", field="curve_points")
     equivalence = _equivalence(data.get("equivalence", {}), f"{path}: [equivalence]")
+    tuning = _tuning(data.get("tuning"), f"{path}: [tuning]")
     datasets = _datasets(data.get("dataset", []), path, expand)
-    strategies = _strategies(data.get("strategy", []), path)
+    strategies = _strategies(data.get("strategy", []), path, tuning)
     speedup = None
     if "speedup" in data:
         speedup = _speedup(data["speedup"], f"{path}: [speedup]", datasets, strategies)
     return Suite(path=path, name=name, description=head.get("description", ""),
                  protocol=protocol, also_measure=also, equivalence=equivalence,
                  datasets=tuple(datasets),
-                 strategies=tuple(strategies), speedup=speedup, text=text)
+                 strategies=tuple(strategies), speedup=speedup, text=text, tuning=tuning)
+
+
+def parse_budget(value: Any, where: str, key: str) -> tuple[int | None, float | None]:
+    """(trials, seconds) of a search budget: a whole number of trials or a duration."""
+    if isinstance(value, bool) or not isinstance(value, (int, str)):
+        raise UserError(f"expected a {_BUDGET[1]}, got {value!r}", file=where, field=key)
+    if isinstance(value, int):
+        if value < 1:
+            raise UserError(f"a budget of {value} trials: give at least 1 (the configured "
+                            "configuration)", file=where, field=key)
+        return value, None
+    seconds = parse_duration(value, where, key)
+    if seconds is None:
+        raise UserError(f"a budget of '{value}' allows no search: give a number of trials or "
+                        "a positive duration such as \"2m\"", file=where, field=key)
+    return None, seconds
+
+
+def _tuning(table: Any, where: str) -> TuningSettings:
+    if table is None:
+        return TuningSettings()
+    t = dict(_check_table(table, _TUNING_KEYS, where, "tuning"))
+    out: dict[str, Any] = {"present": True}
+    if "budget" in t:
+        out["budget_trials"], out["budget_seconds"] = parse_budget(t["budget"], where, "budget")
+    for key, low in (("inner_folds", 2), ("factor", 2), ("max_trials", 1)):
+        if key in t:
+            if t[key] < low:
+                raise UserError(f"must be at least {low}, got {t[key]}", file=where, field=key)
+            out[key] = t[key]
+    if "search" in t:
+        if t["search"] not in SEARCHES:
+            raise UserError(f"unknown search '{t['search']}'{closest(t['search'], SEARCHES)}; "
+                            f"use {' or '.join(SEARCHES)}", file=where, field="search")
+        out["search"] = t["search"]
+    if out.get("search") == HALVING and out.get("budget_seconds") is not None:
+        raise UserError("successive halving needs a budget in trials (the configurations of "
+                        "its first round)", file=where, field="budget")
+    return TuningSettings(**out)
+
+
+def _strategy_tuning(entry: dict, settings: TuningSettings, where: str) -> Tuning | None:
+    """The `Tuning` of one ``[[strategy]]`` entry, or None when it is not tuned."""
+    tune = entry.get("tune", settings.present)
+    if "tune_budget" in entry and tune is False:
+        raise UserError("'tune_budget' needs a tuned strategy (tune = true or a table)",
+                        file=where, field="tune_budget")
+    if tune is False:
+        return None
+    if "grid" in entry:
+        raise UserError("give 'grid' (separate strategies, each judged on the test folds) or "
+                        "'tune' (a search inside each training part), not both; add tune = "
+                        "false to keep the grid", file=where, field="grid")
+    if tune is True:
+        space = default_space(entry.get("method", ""))
+        if space is None:
+            raise UserError("this strategy has no default search space (an import path): "
+                            "give one with tune = { parameter = [values] or { log_uniform = "
+                            "[low, high] } }, or tune = false", file=where, field="tune")
+        common, per_task = space, {}
+    else:
+        if not tune:
+            raise UserError("an empty table tunes nothing: give parameters and their ranges, "
+                            "or tune = true for the method's default space", file=where,
+                            field="tune")
+        raw_common, raw_task = split_by_task(tune, where, "tune")
+        common = {k: parse_range(v, where, f"tune.{k}") for k, v in raw_common.items()}
+        per_task = {task: {k: parse_range(v, where, f"tune.{task}.{k}") for k, v in sp.items()}
+                    for task, sp in raw_task.items()}
+    trials, seconds = settings.budget_trials, settings.budget_seconds
+    if "tune_budget" in entry:
+        trials, seconds = parse_budget(entry["tune_budget"], where, "tune_budget")
+        if settings.search == HALVING and seconds is not None:
+            raise UserError("successive halving needs a budget in trials", file=where,
+                            field="tune_budget")
+    return Tuning(space=common, task_space=per_task, trials=trials, seconds=seconds,
+                  search=settings.search, inner_folds=settings.inner_folds,
+                  factor=settings.factor, max_trials=settings.max_trials)
 
 
 def _protocol(table: Any, where: str) -> Protocol:
@@ -380,12 +482,17 @@ def _entry_name(entry: Any, path: Path, kind: str, i: int) -> tuple[str, str]:
     return name, where
 
 
-def _datasets(entries: Any, path: Path, expand: bool) -> list[DatasetSpec]:
+def _entries(entries: Any, path: Path, kind: str):
+    """(position, name, message prefix, table) of each ``[[kind]]`` entry; at least one."""
     if not isinstance(entries, list) or not entries:
-        raise UserError("a suite needs at least one [[dataset]] entry", file=path)
-    specs, seen = [], set()
+        raise UserError(f"a suite needs at least one [[{kind}]] entry", file=path)
     for i, entry in enumerate(entries, start=1):
-        name, where = _entry_name(entry, path, "dataset", i)
+        yield (i, *_entry_name(entry, path, kind, i), entry)
+
+
+def _datasets(entries: Any, path: Path, expand: bool) -> list[DatasetSpec]:
+    specs, seen = [], set()
+    for i, name, where, entry in _entries(entries, path, "dataset"):
         if name in seen:
             raise UserError(f"the name '{name}' is used by an earlier dataset", file=where,
                             field="name")
@@ -429,12 +536,9 @@ def _datasets(entries: Any, path: Path, expand: bool) -> list[DatasetSpec]:
     return specs
 
 
-def _strategies(entries: Any, path: Path) -> list[Strategy]:
-    if not isinstance(entries, list) or not entries:
-        raise UserError("a suite needs at least one [[strategy]] entry", file=path)
+def _strategies(entries: Any, path: Path, tuning: TuningSettings) -> list[Strategy]:
     out, seen = [], set()
-    for i, entry in enumerate(entries, start=1):
-        _, where = _entry_name(entry, path, "strategy", i)
+    for _, _, where, entry in _entries(entries, path, "strategy"):
         _check_table(entry, _STRATEGY_KEYS, where, "strategy")
         if "method" in entry and ("classifier" in entry or "regressor" in entry):
             raise UserError("give 'method' or 'classifier'/'regressor', not both", file=where,
@@ -443,7 +547,7 @@ def _strategies(entries: Any, path: Path) -> list[Strategy]:
             if not isinstance(values, list) or not values:
                 raise UserError("each grid entry is a non-empty list of values", file=where,
                                 field=f"grid.{key}")
-        for strategy in resolve(entry, where):
+        for strategy in resolve(entry, where, _strategy_tuning(entry, tuning, where)):
             if strategy.name in seen:
                 raise UserError(f"the name '{strategy.name}' is used by an earlier strategy",
                                 file=where, field="name")

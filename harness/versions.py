@@ -30,7 +30,7 @@ OTHER_LIBRARIES = ("woodlot", "openml", "threadpoolctl", "matplotlib", "dask", "
 # fingerprint) and the split indices (`harness.splits`). A speedup point adds the module that
 # times it. `code_version` hashes these files, so the key changes with the code by itself.
 CELL_CODE = ("preprocess.py", "execution/run_cell.py", "execution/measure.py",
-             "row_evidence.py")
+             "row_evidence.py", "search.py", "execution/run_trial.py")
 SPEEDUP_CODE = (*CELL_CODE, "execution/speedup_point.py")
 CODE_KEY = "woodlot code"
 _PACKAGE = Path(__file__).resolve().parent

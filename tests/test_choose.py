@@ -201,3 +201,25 @@ def test_selection_effect_is_corrected():
     rec = recommend(frame, verdict(frame), "t", 1000, PLAN, 60)
     assert sorted(rec.near) == sorted(spec) and rec.pick == "s0"
     assert any("not fixed in advance" in s for s in words.sentences(rec))
+
+
+@pytest.mark.slow
+def test_leaders_are_tuned_when_the_budget_allows(tmp_path, monkeypatch):
+    # one leader, four configurations: affordable within the test's budget on a busy machine
+    import harness.commands.choose as choose_module
+
+    monkeypatch.setattr(choose_module, "TUNE_LEADERS", 1)
+    monkeypatch.setattr(choose_module, "TUNE_TRIALS", 4)
+    additive(n=150, p=3).to_csv(tmp_path / "small.csv", index=False)
+    rec = choose(str(tmp_path / "small.csv"), target="y", budget=180, out=tmp_path / "out",
+                 echo=lambda s: None, progress=False)
+    tuned = [s for s in rec.plan["strategies"] if s.endswith("-tuned")]
+    assert tuned and any(s.startswith("Tuned ") for s in rec.tuning), rec.tuning
+    assert any("changed the recommendation" in s or "did not change the recommendation" in s
+               for s in rec.tuning)
+    by = {r["strategy"]: r for r in rec.strategies}
+    for name in tuned:  # the whole search counts in the fit time
+        assert by[name]["fit_seconds"] > by[name.removesuffix("-tuned")]["fit_seconds"]
+    assert "## Tuning" in (tmp_path / "out" / "recommendation.md").read_text()
+    assert "tune = true" in (tmp_path / "out" / "choose.toml").read_text()
+    assert len(tuned) == 1 and tuned[0] == rec.plan["strategies"][-1]

@@ -17,10 +17,10 @@ PACKAGE = Path(__file__).resolve().parents[1] / "harness"
 LAYERS = [
     ("harness.errors", "harness.files", "harness.names", "harness.versions", "harness.locks",
      "harness.provenance"),
-    ("harness.datasets", "harness.strategies", "harness.suite", "harness.datacheck",
-     "harness.scorers"),
+    ("harness.datasets", "harness.spaces", "harness.strategies", "harness.suite",
+     "harness.datacheck", "harness.scorers"),
     ("harness.splits", "harness.preprocess", "harness.work_units", "harness.row_evidence",
-     "harness.plan"),
+     "harness.search", "harness.plan"),
     ("harness.execution",),
     ("harness.store", "harness.folder_lock"),
     ("harness.analysis",),

@@ -212,3 +212,103 @@ def test_equivalence_is_read(write_suite):
     # defaults: bounded scores ±0.01, errors ±1 % of the best
     assert eq.margin("balanced_accuracy").width == 0.01
     assert eq.margin("neg_mean_absolute_error").relative
+
+
+
+# ------------------------------------------------------------------ tuning (bad input)
+
+GB = TREE.replace('"tree"', '"gb"').replace("single-tree", "gradient-boosting")
+DIABETES = """
+[[dataset]]
+name = "diabetes"
+from = "sklearn"
+load = "load_diabetes"
+"""
+
+
+def test_bad_tuning_ranges(write_suite, capsys, tmp_path):
+    for tune, field, text in [
+            ("{ learning_rat = { log_uniform = [0.01, 1.0] } }", "tune.learning_rat",
+             "did you mean 'learning_rate'"),
+            ("{ learning_rate = { uniform = [0.5, 0.1] } }", "tune.learning_rate",
+             "low must be below high"),
+            ("{ learning_rate = { uniform = [0.5, 0.5] } }", "tune.learning_rate",
+             "low must be below high"),
+            ("{ learning_rate = { log_uniform = [0.0, 1.0] } }", "tune.learning_rate",
+             "above zero"),
+            ("{ learning_rate = { log_uniform = [-1.0, 1.0] } }", "tune.learning_rate",
+             "above zero"),
+            ("{ max_depth = [] }", "tune.max_depth", "empty list"),
+            ("{ max_depth = { integers = [1.5, 4] } }", "tune.max_depth", "whole numbers"),
+            ("{ max_depth = { between = [1, 4] } }", "tune.max_depth", "unknown range"),
+            ("{ subsample = { uniform = [0.5, 1.5] } }", "tune.subsample",
+             "refuses a value of this range"),
+            ("{}", "tune", "tunes nothing")]:
+        check_bad(write_suite, capsys, tmp_path, HEAD + WINE + GB + f"tune = {tune}\n",
+                  "strategy 'gb'", f"field '{field}'", text)
+
+
+def test_bad_tuning_budgets(write_suite, capsys, tmp_path):
+    for budget, text in [("0", "at least 1"), ('"0s"', "must be positive"), ('"none"', "allows no search"),
+                         ('"ten minutes"', "not a duration"), ('"-5m"', "not a duration")]:
+        check_bad(write_suite, capsys, tmp_path,
+                  HEAD + f"\n[tuning]\nbudget = {budget}\n" + WINE + GB, "[tuning]",
+                  "field 'budget'", text)
+        check_bad(write_suite, capsys, tmp_path,
+                  HEAD + WINE + GB + f"tune = true\ntune_budget = {budget}\n", "strategy 'gb'",
+                  "field 'tune_budget'", text)
+    check_bad(write_suite, capsys, tmp_path,
+              HEAD + '\n[tuning]\nbudget = "2m"\nsearch = "halving"\n' + WINE + GB,
+              "field 'budget'", "halving needs a budget in trials")
+    check_bad(write_suite, capsys, tmp_path, HEAD + "\n[tuning]\ninner_folds = 1\n" + WINE + GB,
+              "field 'inner_folds'", "at least 2")
+
+
+def test_tuned_custom_estimator_needs_a_space(write_suite, capsys, tmp_path):
+    custom = ('\n[[strategy]]\nname = "mine"\n'
+              'classifier = "sklearn.linear_model:LogisticRegression"\n')
+    check_bad(write_suite, capsys, tmp_path, HEAD + "\n[tuning]\n" + WINE + custom,
+              "strategy 'mine'", "field 'tune'", "no default search space")
+
+
+def test_grid_and_tune_together_are_refused(write_suite, capsys, tmp_path):
+    check_bad(write_suite, capsys, tmp_path,
+              HEAD + WINE + GB + "grid = { max_depth = [2, 3] }\ntune = true\n",
+              "field 'grid'", "not both")
+
+
+# ------------------------------------------------------------------ parameters per task
+
+def test_classifier_only_parameter_is_checked_against_the_suites_tasks(write_suite, capsys,
+                                                                        tmp_path):
+    exponential = GB + 'params = { loss = "exponential" }\n'
+    cancer = WINE.replace('"wine"', '"cancer"').replace("load_wine", "load_breast_cancer")
+    path = write_suite(HEAD + cancer + exponential)
+    assert main(["check", str(path)]) == 0, capsys.readouterr().err
+    capsys.readouterr()
+    err = check_bad(write_suite, capsys, tmp_path, HEAD + cancer + DIABETES + exponential,
+                    "strategy 'gb'", "GradientBoostingRegressor", "regression",
+                    "dataset 'diabetes'")
+    assert "params.classification" in err  # says where a classifier-only value belongs
+    per_task = GB + 'params = { n_estimators = 20, classification = { loss = "exponential" } }\n'
+    path = write_suite(HEAD + cancer + DIABETES + per_task)
+    assert main(["check", str(path)]) == 0, capsys.readouterr().err
+
+
+def test_parameter_of_neither_estimator_names_both(write_suite, capsys, tmp_path):
+    check_bad(write_suite, capsys, tmp_path, HEAD + WINE + GB + "params = { los = 'log_loss' }\n",
+              "field 'params.los'", "neither GradientBoostingClassifier nor "
+              "GradientBoostingRegressor")
+    check_bad(write_suite, capsys, tmp_path,
+              HEAD + WINE + GB + "params = { regression = { criterio = 'friedman_mse' } }\n",
+              "field 'params.regression.criterio'", "GradientBoostingRegressor has no "
+              "parameter")
+
+
+def test_check_lists_each_tuned_strategys_space_and_budget(write_suite, capsys):
+    body = HEAD + "\n[tuning]\nbudget = 7\n" + WINE + GB + TREE + "tune = false\n"
+    assert main(["check", str(write_suite(body))]) == 0
+    out = capsys.readouterr().out
+    assert "7 trials per outer fold, random search, 3 inner folds" in out
+    assert "learning_rate log_uniform [0.005, 1]" in out  # gradient boosting's default space
+    assert "6 cells" in out and "3 of them tuned (up to 21 trials" in out

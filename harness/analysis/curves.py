@@ -36,6 +36,16 @@ class CurveAdvice:
         return self.family == BOOSTING
 
 
+def mean_curve(curves) -> pd.Series:
+    """Mean score over folds at each ensemble size every fold's curve has (``curves``: one
+    list of [members, score] per fold). Folds of a tuned strategy may end at different
+    sizes; a mean over only some folds would jump between them."""
+    per_fold = [dict((int(n), float(v)) for n, v in c) for c in curves]
+    common = sorted(set.intersection(*(set(f) for f in per_fold))) if per_fold else []
+    return pd.Series({n: float(np.mean([f[n] for f in per_fold])) for n in common},
+                     dtype=float)
+
+
 def curve_advice(ok: pd.DataFrame, metric: str) -> list[CurveAdvice]:
     """One `CurveAdvice` per strategy of ``ok`` (successful cells of one dataset) that has
     an ensemble-size curve with at least three sizes; ``metric`` is the one the curves score."""
@@ -44,8 +54,7 @@ def curve_advice(ok: pd.DataFrame, metric: str) -> list[CurveAdvice]:
         family = str(cells["family"].iloc[0])
         if family == SINGLE_TREE:
             continue
-        pts = pd.DataFrame([p for c in cells["curve"] for p in c], columns=["n", "score"])
-        mean = pts.groupby("n")["score"].mean()
+        mean = mean_curve(cells["curve"])
         if len(mean) < 3:
             continue
         final = cells[metric].to_numpy(float)

@@ -52,6 +52,7 @@ class Recommendation:
     more_repeats: int = 0
     more_seconds: float = 0.0
     cores: list[dict[str, Any]] = field(default_factory=list)
+    tuning: list[str] = field(default_factory=list)  # what tuning the leaders did, in words
     left_out: list[str] = field(default_factory=list)
     warnings: list[str] = field(default_factory=list)
     used_seconds: float = 0.0

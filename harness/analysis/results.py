@@ -7,12 +7,14 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
+from harness.store import TUNED_FRAME_COLUMNS
 from harness.work_units import OK
 
 ID_COLUMNS = ("key", "run", "dataset", "strategy", "method", "family", "task", "repeat", "fold",
               "fingerprint", "n_train", "n_test", "status", "message", "detail", "fit_seconds",
               "fit_cpu_seconds", "predict_seconds", "peak_memory_bytes", "model_bytes", "curve",
-              "threads", "timing", "worker", "seconds", "finished", "row_evidence")
+              "threads", "timing", "worker", "seconds", "finished", "row_evidence",
+              *TUNED_FRAME_COLUMNS)
 
 
 def metric_columns(frame: pd.DataFrame) -> list[str]:

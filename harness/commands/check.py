@@ -34,12 +34,33 @@ def check_suite(path) -> str:
     ds["splits"] = [len(plan.splits[n]) for n in ds["dataset"]]
     lines.append("Datasets\n" + markdown_table(ds.drop(columns=["fingerprint"])))
     st = pd.DataFrame([{"strategy": s.name, "family": s.family, "method": s.method,
-                        "params": ", ".join(f"{k}={v}" for k, v in s.params.items())}
+                        "params": ", ".join(f"{k}={v}" for k, v in s.params.items())
+                        + "".join(f"; {t}: " + ", ".join(f"{k}={v}" for k, v in ps.items())
+                                  for t, ps in s.task_params.items()),
+                        "tuned": _tuning_text(s)}
                        for s in suite.strategies])
+    if not any(s.tuning for s in suite.strategies):
+        st = st.drop(columns=["tuned"])
     lines.append("Strategies\n" + markdown_table(st))
     for strategy, dataset in plan.skipped:
         lines.append(f"note: strategy '{strategy}' has no estimator for dataset '{dataset}'s "
                      "task; skipped")
-    lines.append(f"{len(plan.cells)} cells ({len(plan.datasets)} datasets × "
-                 f"{len(suite.strategies)} strategies × splits); nothing was fitted.")
+    tuned = ""
+    if plan.searches:
+        trials = sum(x.tuning.planned_trials for x in plan.searches)
+        tuned = (f", {len(plan.searches)} of them tuned (up to {trials} trials on inner folds, "
+                 "plus refits)")
+    lines.append(f"{len(plan.keys)} cells ({len(plan.datasets)} datasets × "
+                 f"{len(suite.strategies)} strategies × splits){tuned}; nothing was fitted.")
     return "\n".join(lines)
+
+
+def _tuning_text(strategy) -> str:
+    t = strategy.tuning
+    if t is None:
+        return ""
+    space = "; ".join(f"{k} {r.text()}" for k, r in sorted(t.space.items()))
+    for task, sp in t.task_space.items():
+        space += "".join(f"; {k} {r.text()} ({task})" for k, r in sorted(sp.items()))
+    return (f"{t.budget_text()} per outer fold, {t.search} search, {t.inner_folds} inner "
+            f"folds: {space}")

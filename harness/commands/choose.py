@@ -9,8 +9,14 @@ reproduces it. The steps:
 3. plan: the most repeats × folds (and, if need be, the fewest strategies dropped, dearest
    first) whose estimated time fits what is left of the budget;
 4. run the plan (cells already run are reused), stopping at the budget;
-5. when time is left, a quick one-versus-all-cores fit of the leading strategies;
-6. the recommendation, from the verdict (`harness.analysis.recommendation`).
+5. when the pilot's timings say the rest of the budget allows it, the leading strategies
+   (the best and those near it, at most `TUNE_LEADERS`) are tuned too, as strategies
+   ``<name>-tuned`` with their method's default space, `TUNE_TRIALS` trials per outer fold
+   and nested resampling (`harness.search`); the recommendation is made again over all
+   strategies, counting each tuned strategy's whole search in its fit time, and says
+   whether tuning changed it;
+6. when time is left, a quick one-versus-all-cores fit of the leading strategies;
+7. the recommendation, from the verdict (`harness.analysis.recommendation`).
 """
 
 from __future__ import annotations
@@ -55,6 +61,9 @@ CANDIDATES: tuple[tuple[str, str, dict[str, Any]], ...] = (
 )
 FOLDS = 5
 MAX_REPEATS = 3
+TUNE_LEADERS = 3   # strategies tuned at most: the best and those near it
+TUNE_TRIALS = 8    # configurations per outer fold (the first is the strategy as run)
+INNER_FOLDS = 3
 MIN_BUDGET = 10.0  # seconds: below this not even the pilot of a small table fits
 REPORT_RESERVE = 8.0  # seconds kept for tables, plots and the report
 SUITE_NAME = "choose.toml"
@@ -112,7 +121,8 @@ def _relative(path: Path, folder: Path) -> str:
 
 def suite_text(entry: dict, metrics: list[str], task: str, repeats: int, seed: int,
                strategies, speedup: dict | None = None) -> str:
-    """The suite file `choose` writes and runs."""
+    """The suite file `choose` writes and runs; ``strategies`` are (name, method, params) or
+    (name, method, params, extra keys such as ``tune``)."""
     doc = tomlkit.document()
     doc.add(tomlkit.comment("Written by 'woodlot choose'; 'woodlot run' on this file "
                             "reproduces the comparison."))
@@ -126,10 +136,11 @@ def suite_text(entry: dict, metrics: list[str], task: str, repeats: int, seed: i
     datasets.append(tomlkit.item(entry))
     doc.add("dataset", datasets)
     aot = tomlkit.aot()
-    for name, method, params in strategies:
+    for name, method, params, *extra in strategies:
         inline = tomlkit.inline_table()
         inline.update(params)
-        aot.append(tomlkit.item({"name": name, "method": method, "params": inline}))
+        aot.append(tomlkit.item({"name": name, "method": method, "params": inline,
+                                 **(extra[0] if extra else {})}))
     doc.add("strategy", aot)
     if speedup:
         doc.add("speedup", speedup)
@@ -235,8 +246,19 @@ def _choose(ds: Dataset, check: DataCheck, entry: dict, folder: Path, metrics: l
     # 3. plan what fits
     seconds_left = deadline - time.perf_counter() - REPORT_RESERVE
     families = dict(zip(ok.strategy, ok.family))
-    repeats, kept, estimate = plan_budget(costs, seconds_left * 0.8, jobs, FOLDS, MAX_REPEATS,
-                                          families)
+    # Room for tuning the leaders (guessed from the pilot's scores) is kept when the whole
+    # comparison still fits with it; otherwise the comparison takes the budget untuned.
+    guess = ok.sort_values(metrics[0], ascending=False)["strategy"].tolist()[:TUNE_LEADERS]
+    repeats = 0
+    for r in range(MAX_REPEATS, 0, -1):
+        room = seconds_left * 0.8 - tuning_seconds(costs, guess, r, jobs)
+        repeats, kept, estimate = plan_budget(costs, room, jobs, FOLDS, r, families)
+        if repeats == r and len(kept) == len(costs):
+            break
+        repeats = 0
+    if repeats == 0:
+        repeats, kept, estimate = plan_budget(costs, seconds_left * 0.8, jobs, FOLDS,
+                                              MAX_REPEATS, families)
     if repeats == 0:  # only the pilot fits: keep what we have
         repeats, kept = 1, sorted(costs, key=costs.get)[:1]
         left_out.append("the rest of the folds: the budget is spent after the pilot")
@@ -255,13 +277,30 @@ def _choose(ds: Dataset, check: DataCheck, entry: dict, folder: Path, metrics: l
         left_out.append("some folds: the run reached the end of the budget before finishing")
     frame = _frame(folder)
     # 4. the recommendation, from the verdict
+    plan = {"folds": FOLDS, "repeats": repeats, "strategies": list(kept), "jobs": jobs,
+            "rows": ds.n_rows, "task": ds.task}
     v = verdict(frame, {ds.task: metrics}, load_suite(suite_path).equivalence)
-    rec = recommend(frame, v, ds.name, ds.n_rows,
-                    plan={"folds": FOLDS, "repeats": repeats, "strategies": list(kept),
-                          "jobs": jobs, "rows": ds.n_rows, "task": ds.task},
-                    budget_seconds=budget_s)
+    rec = recommend(frame, v, ds.name, ds.n_rows, plan=plan, budget_seconds=budget_s)
+    # 5. tune the leaders when the budget allows
+    tuning = _tune_leaders(rec, costs, repeats, jobs, deadline, strategies,
+                           lambda st: write_suite(repeats, st), suite_path, folder, progress)
+    if tuning["ran"]:
+        frame = _frame(folder)
+        v = verdict(frame, {ds.task: metrics}, load_suite(suite_path).equivalence)
+        untuned = rec
+        rec = recommend(frame, v, ds.name, ds.n_rows, plan=plan, budget_seconds=budget_s)
+        rec.plan["strategies"] = list(kept) + tuning["names"]
+        before, after = untuned.pick or "none", rec.pick or "none"
+        tuning["sentences"].append(
+            f"Tuning changed the recommendation: {before} untuned, {after} with the tuned "
+            "strategies compared too (their fit time counts the whole search)."
+            if after != before else
+            f"Tuning did not change the recommendation ({after}); tuned strategies' fit "
+            "time counts the whole search.")
+    rec.tuning = tuning["sentences"]
+    strategies = tuning["strategies"]
     rec.left_out, rec.warnings = left_out, [f.message for f in check.warnings]
-    # 5. cores: a quick one-versus-all-cores check of the best and the pick
+    # 6. cores: a quick one-versus-all-cores check of the best and the pick
     if (os.cpu_count() or 1) > 1:
         rec.cores = _cores(rec, costs, deadline, suite_path, folder, progress,
                            lambda speedup: write_suite(repeats, strategies, speedup))
@@ -272,6 +311,56 @@ def _choose(ds: Dataset, check: DataCheck, entry: dict, folder: Path, metrics: l
     write_text(folder / "recommendation.json", rec.to_json())
     write_text(folder / "recommendation.md", words.markdown(rec))
     return rec
+
+
+def tuning_seconds(costs: dict[str, float], leaders: list[str], repeats: int,
+                   jobs: int) -> float:
+    """Estimated seconds to tune ``leaders`` over ``repeats`` × `FOLDS` outer folds (see
+    `_tune_leaders`)."""
+    refits = TUNE_TRIALS.bit_length() + 1
+    per_fold = sum(costs[s] * (TUNE_TRIALS * INNER_FOLDS * 2 / 3 + refits) for s in leaders)
+    return per_fold * repeats * FOLDS / max(1, jobs) * 1.2
+
+
+def _tune_leaders(rec: Recommendation, costs: dict[str, float], repeats: int, jobs: int,
+                  deadline: float, strategies: list, write_suite, suite_path: Path,
+                  folder: Path, progress: bool | None) -> dict[str, Any]:
+    """Tune the best strategy and those practically equivalent to it when the rest of the
+    budget allows.
+
+    Estimated cost per strategy and outer fold: `TUNE_TRIALS` trials of `INNER_FOLDS` fits
+    on two thirds of the training rows (about `INNER_FOLDS` × 2/3 of a cell each, by the
+    pilot's timing, which includes prediction), plus up to log2(`TUNE_TRIALS`) + 1 refits;
+    times repeats × folds, over ``jobs`` workers, with a 20% margin: a tuned configuration
+    may be dearer than the default (more stages, deeper trees); no unit starts after the
+    budget in any case."""
+    leaders = [rec.best] + [s for s in rec.near if s != rec.best]
+    leaders = [s for s in leaders if s in costs][:TUNE_LEADERS]
+    need = tuning_seconds(costs, leaders, repeats, jobs)
+    left = deadline - time.perf_counter() - REPORT_RESERVE
+    out = {"ran": False, "names": [], "sentences": [], "strategies": strategies}
+    if not leaders:
+        return out
+    if need > left:
+        out["sentences"].append(
+            f"Not tuned: tuning {', '.join(leaders)} ({TUNE_TRIALS} configurations per fold, "
+            f"nested) would need about {words.clock(need)}; {words.clock(max(left, 0))} of the "
+            "budget were left. A larger --budget compares them tuned too.")
+        return out
+    by_name = {c[0]: c for c in strategies}
+    tuned = [(f"{s}-tuned", by_name[s][1], by_name[s][2],
+              {"tune": True, "tune_budget": TUNE_TRIALS}) for s in leaders]
+    out["strategies"] = strategies + tuned
+    write_suite(out["strategies"])
+    run_suite(suite_path, out=folder, jobs=max(1, jobs), progress=progress, echo=lambda s: None,
+              write_outputs=False, deadline=deadline - REPORT_RESERVE,
+              command="woodlot choose (tuning)")
+    out["ran"], out["names"] = True, [t[0] for t in tuned]
+    out["sentences"].append(
+        f"Tuned {', '.join(leaders)} with {TUNE_TRIALS} configurations per fold from each "
+        f"method's default space (nested: {INNER_FOLDS} inner folds of each training part); "
+        "see report.html, section What tuning buys.")
+    return out
 
 
 def _frame(folder: Path):
@@ -285,7 +374,8 @@ def _cores(rec: Recommendation, costs: dict[str, float], deadline: float, suite_
     """One fit at 1 worker and one at all cores of the best and the pick, when the budget
     has room for them (about (1 + 1/cores) × a fold's fit each)."""
     cores = os.cpu_count() or 1
-    names = list(dict.fromkeys(n for n in (rec.best, rec.pick) if n))
+    # a tuned strategy is timed as configured (its search's choice differs from fold to fold)
+    names = list(dict.fromkeys(n.removesuffix("-tuned") for n in (rec.best, rec.pick) if n))
     need = sum(costs.get(n, 0.0) * (1 + 1 / cores) * 1.3 for n in names) + 3.0
     left = deadline - time.perf_counter() - REPORT_RESERVE
     if need > left:

@@ -11,6 +11,7 @@ from typing import Callable
 from harness.commands.lifecycle import Echo, session, stderr_echo, refresh_outputs
 from harness.commands.progress import Progress
 from harness.commands.speedup import SpeedupResult, measure_points
+from harness.commands.work import RunWork
 from harness.errors import UserError
 from harness.execution.executor import Executor
 from harness.execution.local import LocalExecutor
@@ -30,6 +31,7 @@ class RunResult:
     ran: int = 0
     failed: int = 0
     succeeded: int = 0  # cells of the plan stored as ok (run now or before)
+    trials: int = 0  # trials of tuned strategies' searches run
     stopped: bool = False  # the deadline came before every selected cell had run
     notes: list[str] = field(default_factory=list)
     speedup: SpeedupResult | None = None
@@ -38,6 +40,7 @@ class RunResult:
     def __repr__(self) -> str:
         return (f"RunResult(folder='{self.folder}', planned={self.planned}, "
                 f"reused={self.reused}, ran={self.ran}, failed={self.failed}"
+                + (f", trials={self.trials}" if self.trials else "")
                 + (", stopped at the deadline" if self.stopped else "") + ")")
 
 
@@ -94,39 +97,47 @@ def run_suite(path: str | Path, *, out: str | Path | None = None, jobs: int | No
     with session(path, out=out, command=command, executor=executor, fresh=fresh,
                  timing=TIMING, wait=wait, echo=echo) as s:
         store, plan = s.store, s.plan
-        result = RunResult(folder=s.folder, planned=len(plan.cells), reused=0, notes=s.notes)
+        keys = plan.keys
+        result = RunResult(folder=s.folder, planned=len(keys), reused=0, notes=s.notes)
         done = store.finished_keys(include_failed=not retry_failed)
         todo = [c for c in plan.cells if c.key not in done and (select is None or select(c))]
-        result.reused = len(plan.cells) - len(todo)
-        store.set_plan(c.key for c in plan.cells)
+        searches = [x for x in plan.searches
+                    if x.key not in done and (select is None or select(x.cell))]
+        result.reused = len(keys) - len(todo) - len(searches)
+        store.set_plan(keys)
         store.record_splits(cell_splits(plan))
         memory, s.provenance["cell_memory"] = None, "set by the Dask workers (--memory-limit)"
         if isinstance(executor, LocalExecutor):
             memory, s.provenance["cell_memory"] = cell_limit(s.suite.protocol.cell_memory,
                                                              executor.jobs)
-            if todo and memory is not None and not ENFORCED:
+            if (todo or searches) and memory is not None and not ENFORCED:
                 echo("note: the cell memory limit is enforced on Linux only; on this system a "
                      "cell may use all the memory there is")
-        bar = Progress(len(todo), enabled=progress)
+        wanted = len(todo) + len(searches)
+        bar = Progress(wanted, enabled=progress)
         try:
             timeout = s.suite.protocol.cell_timeout
             if deadline is not None:
                 left = max(0.5, deadline - time.perf_counter())
                 timeout = left if timeout is None else min(timeout, left)
-            for row in executor.run(todo, plan.by_fingerprint, timeout, memory):
-                store.put(row, s.run)
-                result.ran += 1
-                result.failed += row["status"] != OK
-                bar.step(row["status"] == OK)
+            work = RunWork(todo, searches, store, s.run, retry_failed=retry_failed)
+            counted = 0
+            for row in executor.run(work, plan.by_fingerprint, timeout, memory):
+                work.accept(row)
+                for fine in work.statuses[counted:]:
+                    bar.step(fine)
+                counted = work.finished_cells
                 if deadline is not None and time.perf_counter() > deadline \
-                        and result.ran < len(todo):
+                        and work.finished_cells < wanted:
                     result.stopped = True
                     break
         finally:
             bar.close()
+        result.ran, result.failed = work.finished_cells, work.failed_cells
+        result.trials = work.trials_run
         executor.close()  # nothing of the accuracy cells runs while speedup points are timed
         ok = store.finished_keys(include_failed=False)
-        result.succeeded = sum(c.key in ok for c in plan.cells)
+        result.succeeded = sum(k in ok for k in keys)
         if s.suite.speedup is not None:  # the speedup points run alone, after every cell
             result.speedup = measure_points(s, s.suite.speedup, retry_failed=retry_failed,
                                             progress=progress, echo=echo)

@@ -39,10 +39,10 @@ from typing import Any, Iterator
 
 from harness.datasets import Dataset
 from harness.errors import UserError
-from harness.execution.executor import Executor
-from harness.execution.run_cell import run_cell
+from harness.execution.executor import Executor, as_source
+from harness.execution.units import run_unit
 from harness.versions import differences, result_versions, version
-from harness.work_units import ERROR, TIMEOUT, Cell, failed_row
+from harness.work_units import ERROR, TIMEOUT, failed_row
 
 CONNECT_TIMEOUT = 10.0  # seconds to reach the scheduler and see a worker
 ALLOWED_FAILURES = 2  # worker deaths a cell may cause before it is an error (local cluster)
@@ -76,9 +76,9 @@ def _probe() -> dict[str, Any]:
             "versions": library_versions()}
 
 
-def _run_task(cell: Cell, dataset: Dataset, timeout: float | None,
+def _run_task(cell, dataset: Dataset, timeout: float | None,
               expected: dict[str, str]) -> dict[str, Any]:
-    """The Dask task of one cell."""
+    """The Dask task of one unit (a cell or a trial)."""
     from distributed import Reschedule, get_worker
 
     worker = get_worker()
@@ -102,9 +102,9 @@ def _run_task(cell: Cell, dataset: Dataset, timeout: float | None,
         time.sleep(0.5)  # the restart is on its way; do not bounce the cell back at once
         raise Reschedule()
     if timeout is None:
-        return run_cell(cell, dataset)
+        return run_unit(cell, dataset)
     box: dict[str, Any] = {}
-    thread = threading.Thread(target=lambda: box.update(row=run_cell(cell, dataset)),
+    thread = threading.Thread(target=lambda: box.update(row=run_unit(cell, dataset)),
                               name=f"cell-{cell.key[:12]}", daemon=True)
     thread.start()
     thread.join(timeout)
@@ -296,16 +296,20 @@ class DaskExecutor(Executor):
         self._log_levels.clear()
 
     # ------------------------------------------------------------------ running
-    def run(self, cells: list[Cell], datasets: dict[str, Dataset],
+    def run(self, units, datasets: dict[str, Dataset],
             timeout: float | None, memory: int | None = None) -> Iterator[dict]:
         """``memory`` is not enforced here: the cluster's workers have their own memory
         limits (``dask worker --memory-limit``), which restart a worker that passes them."""
-        if not cells:
+        source = as_source(units)
+        first = []
+        while (unit := source.take()) is not None:
+            first.append(unit)
+        if not first:
             return
         self.open()
-        yield from self._stream(cells, datasets, timeout)
+        yield from self._stream(first, source, datasets, timeout)
 
-    def _stream(self, cells: list[Cell], datasets: dict[str, Dataset],
+    def _stream(self, first: list, source, datasets: dict[str, Dataset],
                 timeout: float | None) -> Iterator[dict]:
         from distributed import as_completed
         from distributed.scheduler import KilledWorker
@@ -314,11 +318,11 @@ class DaskExecutor(Executor):
         run_id = uuid.uuid4().hex[:8]  # task keys never collide with another run's
         expected = library_versions()
         data: dict[str, Any] = {}
-        cell_of: dict[str, Cell] = {}
+        cell_of: dict[str, Any] = {}
         sent: dict[str, int] = {}
         futures: list = []
 
-        def submit(cell: Cell):
+        def submit(cell):
             # Each dataset is sent once, then copied from worker to worker, so that losing a
             # worker does not lose it.
             if cell.fingerprint not in data or data[cell.fingerprint].status != "finished":
@@ -332,7 +336,7 @@ class DaskExecutor(Executor):
             return future
 
         try:
-            stream = as_completed([submit(cell) for cell in cells], loop=client.loop)
+            stream = as_completed([submit(unit) for unit in first], loop=client.loop)
             for future in stream:
                 cell = cell_of[future.key]
                 if future.status == "finished":
@@ -370,6 +374,8 @@ class DaskExecutor(Executor):
                                      "lost?")
                 future.release()
                 yield row
+                while (unit := source.take()) is not None:  # work the row made ready
+                    stream.add(submit(unit))
         finally:
             pending = [f for f in futures if not f.done()]
             if pending:

@@ -1,15 +1,42 @@
 """The interface every executor implements. An executor is used as a context manager: it is
 opened before anything is written (an unreachable cluster fails there), describes where the
-cells run for the provenance, runs cells yielding each row as it finishes, and is closed
-whatever happens, so that a cluster woodlot started never outlives the command."""
+units run for the provenance, runs units yielding each row as it finishes, and is closed
+whatever happens, so that a cluster woodlot started never outlives the command.
+
+Units come from a `WorkSource`: a fixed list of cells, or work that grows as results come in
+(the trials and refits of searches). An executor asks the source for a unit whenever a worker
+is free, and again after each row it yields (the caller has seen that row by then); when the
+source has nothing ready and nothing is running, the run is over."""
 
 from __future__ import annotations
 
 from abc import ABC, abstractmethod
-from typing import Any, Iterator
+from collections import deque
+from typing import Any, Iterable, Iterator
 
 from harness.datasets import Dataset
-from harness.work_units import Cell
+
+
+class WorkSource(ABC):
+    """Where an executor takes its units (cells, trials) from."""
+
+    @abstractmethod
+    def take(self):
+        """The next unit ready to run, or None when none is ready now."""
+
+
+class Fixed(WorkSource):
+    """A list of units, in order."""
+
+    def __init__(self, units: Iterable) -> None:
+        self.pending = deque(units)
+
+    def take(self):
+        return self.pending.popleft() if self.pending else None
+
+
+def as_source(units) -> WorkSource:
+    return units if isinstance(units, WorkSource) else Fixed(units)
 
 
 class Executor(ABC):
@@ -35,11 +62,11 @@ class Executor(ABC):
         return []
 
     @abstractmethod
-    def run(self, cells: list[Cell], datasets: dict[str, Dataset],
+    def run(self, units, datasets: dict[str, Dataset],
             timeout: float | None, memory: int | None = None) -> Iterator[dict]:
-        """Run ``cells`` (``datasets`` keyed by fingerprint); yield each row as it finishes.
-        ``timeout`` (seconds) and ``memory`` (bytes, `harness.execution.memory`) limit each
-        cell, where the executor can enforce them."""
+        """Run ``units`` (a list or a `WorkSource`; ``datasets`` keyed by fingerprint); yield
+        each row as it finishes. ``timeout`` (seconds) and ``memory`` (bytes,
+        `harness.execution.memory`) limit each unit, where the executor can enforce them."""
 
     def close(self) -> None:
         """Release everything `open` and `run` started."""

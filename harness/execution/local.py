@@ -9,21 +9,20 @@ from __future__ import annotations
 import os
 import signal
 import time
-from collections import deque
 from multiprocessing.connection import wait
 from typing import Iterator
 
 from harness.datasets import Dataset
 from harness.errors import UserError
-from harness.execution.executor import Executor
+from harness.execution.executor import Executor, as_source
 from harness.execution.memory import limited
 from harness.execution.processes import context, death, die_with_parent, stop_tree
-from harness.execution.run_cell import run_cell
-from harness.work_units import ERROR, TIMEOUT, Cell, failed_row
+from harness.execution.units import run_unit
+from harness.work_units import ERROR, TIMEOUT, failed_row
 
 
 def _worker_main(conn, memory: int | None) -> None:
-    """Loop of one worker process: keep datasets sent to it, run the cells it is given."""
+    """Loop of one worker process: keep datasets sent to it, run the units it is given."""
     signal.signal(signal.SIGINT, signal.SIG_IGN)  # the parent handles Ctrl-C and stops us
     die_with_parent()
     for var in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS"):
@@ -37,10 +36,10 @@ def _worker_main(conn, memory: int | None) -> None:
         kind = message[0]
         if kind == "dataset":
             datasets[message[1]] = message[2]
-        elif kind == "cell":
-            cell: Cell = message[1]
+        elif kind == "unit":
+            unit = message[1]
             with limited(memory):
-                row = run_cell(cell, datasets[cell.fingerprint])
+                row = run_unit(unit, datasets[unit.fingerprint])
             conn.send(row)
         else:
             return
@@ -53,15 +52,15 @@ class _Worker:
         self.process.start()
         child.close()
         self.has: set[str] = set()
-        self.cell: Cell | None = None
+        self.cell = None  # the unit running, if any
         self.started = 0.0
 
-    def give(self, cell: Cell, dataset: Dataset) -> None:
-        if cell.fingerprint not in self.has:
-            self.conn.send(("dataset", cell.fingerprint, dataset))
-            self.has.add(cell.fingerprint)
-        self.conn.send(("cell", cell))
-        self.cell, self.started = cell, time.perf_counter()
+    def give(self, unit, dataset: Dataset) -> None:
+        if unit.fingerprint not in self.has:
+            self.conn.send(("dataset", unit.fingerprint, dataset))
+            self.has.add(unit.fingerprint)
+        self.conn.send(("unit", unit))
+        self.cell, self.started = unit, time.perf_counter()
 
     def stop(self, force: bool = False) -> None:
         """Ask the worker to finish (``force``: end it and every process it started)."""
@@ -83,7 +82,8 @@ class _Worker:
 
 
 class LocalExecutor(Executor):
-    """``jobs`` worker processes on this machine, each cell single-threaded by default."""
+    """``jobs`` worker processes on this machine (started as work arrives), each unit
+    single-threaded by default."""
 
     name = "local"
 
@@ -92,20 +92,28 @@ class LocalExecutor(Executor):
             raise UserError(f"--jobs must be at least 1, got {jobs}")
         self.jobs = jobs or os.cpu_count() or 1
 
-    def run(self, cells: list[Cell], datasets: dict[str, Dataset],
+    def run(self, units, datasets: dict[str, Dataset],
             timeout: float | None, memory: int | None = None) -> Iterator[dict]:
-        if not cells:
-            return
-        ctx = context()
-        pending = deque(cells)
-        workers = [_Worker(ctx, memory) for _ in range(min(self.jobs, len(cells)))]
+        source = as_source(units)
+        ctx = None
+        workers: list[_Worker] = []
         try:
-            while pending or any(w.cell for w in workers):
-                for w in workers:
-                    if w.cell is None and pending:
-                        cell = pending.popleft()
-                        w.give(cell, datasets[cell.fingerprint])
+            while True:
+                while True:  # hand out every unit ready, to idle workers or new ones
+                    idle = next((w for w in workers if w.cell is None), None)
+                    if idle is None and len(workers) >= self.jobs:
+                        break
+                    unit = source.take()
+                    if unit is None:
+                        break
+                    if idle is None:
+                        ctx = ctx or context()
+                        idle = _Worker(ctx, memory)
+                        workers.append(idle)
+                    idle.give(unit, datasets[unit.fingerprint])
                 busy = [w for w in workers if w.cell is not None]
+                if not busy:
+                    return
                 wait_for = None
                 if timeout is not None:
                     now = time.perf_counter()

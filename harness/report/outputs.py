@@ -40,6 +40,7 @@ class Outputs:
     speedup: pd.DataFrame | None = None   # one line per dataset × strategy, when it has speedup points
     tables: dict[str, Table] = field(default_factory=dict)
     unchanged: bool = False  # the store had not changed since these files were written
+    tuning: list[str] = field(default_factory=list)  # what tuning buys, in sentences
 
 
 def clear_outputs(folder: Path) -> None:

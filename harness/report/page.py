@@ -33,7 +33,8 @@ CAUTION = ("**Caution.** A benchmark win does not transfer automatically. Scores
 
 # (id, title) of every section, in page order; the recommendation only for `woodlot choose`,
 # the across-dataset sections only with at least two datasets, the speedup section only when
-# the store has a speedup run. The tests check that each shown is in the page and visible.
+# the store has a speedup run, the tuning section only when some strategy was tuned. The
+# tests check that each shown is in the page and visible.
 SECTIONS = [
     ("recommendation", "Recommendation"),
     ("verdict", "The short answer"),
@@ -44,6 +45,7 @@ SECTIONS = [
     ("datasets", "Dataset by dataset"),
     ("cost", "Accuracy against cost"),
     ("ensemble-size", "Score as the ensemble grows"),
+    ("tuning", "What tuning buys"),
     ("speedup", "Using more cores"),
     ("failures", "Cells that did not finish"),
     ("provenance", "How these results were made"),
@@ -102,6 +104,7 @@ class PageContent:
     status: str = ""  # said at the top when the results are partial
     panels_note: str = ""  # when per-dataset figures show only some of the datasets
     pairs_note: str = ""   # when the verdict pictures show only some of the pairs
+    tuning: list[str] = field(default_factory=list)  # sentences; empty when nothing was tuned
 
 
 # ------------------------------------------------------------------ small helpers
@@ -246,6 +249,24 @@ def _ensemble_section(c: PageContent) -> str:
             + _img(c, "ensemble_size", "score against ensemble size"))
 
 
+def _tuning_section(c: PageContent) -> str:
+    items = "".join(f"<li>{esc(x)}</li>" for x in c.tuning)
+    parts = [f'<ul class="verdict">{items}</ul>',
+             "<p>Each tuned strategy was searched inside every outer training part (nested "
+             "resampling): configurations scored on inner folds of the training rows only, the "
+             "best refit on them and scored once on the outer test rows. The first "
+             "configuration tried is the one given, so the same run measures the untuned "
+             "strategy. Curves: the outer-test score of the best configuration among the "
+             "first trials (solid) against the inner score that chose it (dashed); where the "
+             "solid line flattens, more budget buys little.</p>",
+             _img(c, "tuning_curves", "tuning curves: score against trials")]
+    for name in ("tuning_gains", "tuning_summary", "tuning_ranks", "chosen_configurations"):
+        if name in c.tables:
+            t = c.tables[name]
+            parts.append(f"<h3>{esc(t.title)}</h3>" + to_html(t, level=4))
+    return "".join(parts)
+
+
 def _speedup_section(c: PageContent) -> str:
     parts = ["<p>From the speedup run, which fits each strategy alone at each worker "
              "count.</p>"]
@@ -302,6 +323,7 @@ def render(c: PageContent) -> str:
         "critical-difference": _cd_section(c) if across else None,
         "datasets": _datasets_section(c), "cost": _cost_section(c),
         "ensemble-size": _ensemble_section(c),
+        "tuning": _tuning_section(c) if c.tuning else None,
         "speedup": _speedup_section(c) if c.has_speedup else None,
         "failures": _failures_section(c), "provenance": _provenance_section(c),
         "caution": _caution_section()}

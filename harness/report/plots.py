@@ -1,6 +1,7 @@
 """The report's charts, each returned as a `matplotlib.figure.Figure` (never through pyplot,
 so drawing them changes no global state such as a notebook's backend): score against fit time
-with the Pareto front, average rank against fit time, and ensemble-size curves."""
+with the Pareto front, average rank against fit time, ensemble-size curves and tuning
+curves."""
 
 from __future__ import annotations
 
@@ -209,4 +210,39 @@ def size_curves(points: pd.DataFrame, primary: dict[str, str],
         ax.grid(True, which="both", alpha=0.3)
     fig.suptitle("Test score as the ensemble grows (mean over folds)", fontsize=12)
     place_panels(fig, legend_below(fig, handles), _top(fig))
+    return fig
+
+
+def tuning_curves(curves: pd.DataFrame, primary: dict[str, str]) -> Figure | None:
+    """Per dataset: the outer-test score of the best configuration so far against the number
+    of trials (solid), with its mean inner score (dashed). ``curves``:
+    `harness.analysis.tuning.mean_curves` with each strategy's ``method`` and ``family``."""
+    if curves.empty:
+        return None
+    fig, panels, colors = dataset_panels(curves)
+    families = dict(zip(curves["strategy"], curves["family"]))
+    handles = {}
+    for ax, ds, part in panels:
+        metric = primary[ds]
+        for name, c in part.groupby("strategy", sort=False):
+            c = c.sort_values("budget")
+            (h,) = ax.plot(c["budget"], as_read(metric, c["outer"].to_numpy()),
+                           marker=marker(families.get(name, "")), color=colors[name],
+                           markersize=5, linewidth=1.6)
+            ax.plot(c["budget"], as_read(metric, c["inner"].to_numpy()), color=colors[name],
+                    linewidth=1.0, linestyle="--", alpha=0.8)
+            handles[plain(name)] = h
+        ax.set_xscale("log", base=2)
+        ax.xaxis.set_minor_formatter(NullFormatter())
+        budgets = sorted(set(part["budget"]))
+        ax.set_xticks(budgets)
+        ax.set_xticklabels([str(b) for b in budgets])
+        ax.set_title(plain(ds), fontsize=11)
+        ax.set_xlabel("trials (configurations tried, log scale)")
+        ax.set_ylabel(metric_heading(metric), fontsize=9)
+        ax.grid(True, which="both", alpha=0.3)
+    fig.suptitle("Best configuration so far: outer-test score (solid) and mean inner score "
+                 "(dashed), mean over outer folds", fontsize=12)
+    bottom = legend_below(fig, handles, ncol=min(4, len(handles)))
+    fig.tight_layout(rect=(0, bottom, 1, 0.96))
     return fig

@@ -128,6 +128,7 @@ def sections(rec: Recommendation) -> list[tuple[str, list[str]]]:
     return [(title, items) for title, items in (
         ("Warnings", warnings(rec)),
         ("Ensemble size", [curve_sentence(c) for c in rec.curves]),
+        ("Tuning", rec.tuning),
         ("More cores", cores_sentences(rec)), ("Left out", rec.left_out)) if items]
 
 

@@ -17,12 +17,13 @@ from typing import Iterator
 import pandas as pd
 from matplotlib.figure import Figure
 
+from harness.analysis import tuning
 from harness.analysis.results import strategy_means
 from harness.analysis.speedup import summarize
 from harness.analysis.verdict import Verdict, verdict
 from harness.files import writable_folder, write_bytes, write_text
 from harness.folder_lock import running_elsewhere
-from harness.report import plots, speedup_plots, tables, verdict_plots, words
+from harness.report import plots, speedup_plots, tables, tuning_tables, verdict_plots, words
 from harness.report.cd_diagram import cd_figure
 from harness.report.outputs import STATE_NAME, SUMMARY_NAME, Outputs, state_text
 from harness.report.page import REPORT_NAME, PageContent, render
@@ -143,6 +144,29 @@ def _gone(run: dict | None) -> dict | None:
     return {**run, "state": "killed"} if run and run.get("state") == "running" else run
 
 
+def _tuning(frame: pd.DataFrame, trials: pd.DataFrame, refits: pd.DataFrame, v: Verdict,
+            out: Outputs, draw) -> list[Table]:
+    """The tables, figure and sentences of what tuning buys."""
+    g = tuning.gains(frame, refits, v.primary, v.alpha)
+    s = tuning.gain_summary(g)
+    r = tuning.ranking_change(frame, refits, v.primary)
+    st = tuning.stability(frame)
+    out.tuning = tuning_tables.sentences(g, s, r, v.alpha)
+    curves = tuning.mean_curves(tuning.tuning_curves(trials, refits, v.primary))
+    curves = curves.merge(frame[["strategy", "method", "family"]].drop_duplicates("strategy"),
+                          on="strategy")
+    draw("tuning_curves", plots.tuning_curves(curves, v.primary))
+    found = [tuning_tables.gains(g, v.alpha), tuning_tables.summary(s)]
+    if not r.empty:
+        found.append(tuning_tables.ranking(r))
+    if not st.empty:
+        found.append(tuning_tables.stability(st))
+    if not curves.empty:
+        found.append(Table("tuning_curves", "Tuning curves (mean over outer folds)", curves,
+                           curves))
+    return found
+
+
 def run_status(folder: Path, run: dict | None, running: str | None) -> str:
     """Why the folder's results are partial (``running``: who is still writing to it; or
     the latest run ended without finishing), or ''."""
@@ -176,6 +200,9 @@ def write_report(folder: str | Path, recommendation: list[str] | None = None,
         runs = _computing_runs(store, frame, points_frame)
         panels = list(dict.fromkeys(frame["dataset"]))[:MAX_PANELS] if not frame.empty else []
         curves = store.curve_points(panels) if panels else pd.DataFrame()
+        tuned = not frame.empty and bool(frame["tuned"].any())
+        trials = store.trials_frame() if tuned else pd.DataFrame()
+        refits = store.refits_frame() if tuned else pd.DataFrame()
     running = running_elsewhere(folder)
     if running is None:  # a run still marked running holds no lock: its process is gone
         last, runs = _gone(last), [_gone(r) for r in runs]
@@ -213,9 +240,13 @@ def write_report(folder: str | Path, recommendation: list[str] | None = None,
                       tables.ranks(v, frame)]
             if v.tested:
                 found += [tables.tests(v), tables.pairs_across(v)]
+        if tuned:
+            found += _tuning(frame, trials, refits, v, out, draw)
         out.files.append(write_text(target / SUMMARY_NAME, "# The short answer\n\n" + "".join(
             f"{md_text(s)}\n\n" for s in words.bottom_line(v)) + "## Details\n\n" + "".join(
-            f"- {md_text(s)}\n" for s in words.details(v))))
+            f"- {md_text(s)}\n" for s in words.details(v))
+            + ("\n## What tuning buys\n\n" + "".join(f"- {md_text(s)}\n" for s in out.tuning)
+               if out.tuning else "")))
         shown = frame[frame["dataset"].isin(panels)]
         dataset_table = _dataset_table(summaries, frame, v)
         del frame  # the biggest frame is not needed past here
@@ -253,7 +284,8 @@ def write_report(folder: str | Path, recommendation: list[str] | None = None,
         suite_text=(run or {}).get("suite_text") or "", has_speedup=not points_frame.empty,
         recommendation=recommendation or [],
         recommendation_sections=recommendation_sections or [], status=status,
-        panels_note=_panels_note(n_datasets), pairs_note=_pairs_note(out.verdict))
+        panels_note=_panels_note(n_datasets), pairs_note=_pairs_note(out.verdict),
+        tuning=out.tuning)
     out.files.append(write_text(target / REPORT_NAME, render(content)))
     write_text(target / STATE_NAME, state_text(state, target, out.files, partial=bool(status)))
     return out
