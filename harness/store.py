@@ -637,7 +637,9 @@ class Store:
         if curves:
             frame["curve"] = [parsed["curve"][i] for i in order]
         metrics = pd.DataFrame([parsed["scores"][i] for i in order])
-        frame = frame[table].merge(self._tuned_columns(), on="key", how="left")
+        tuned = self._tuned_columns()
+        frame = frame[table].astype({"key": object}).merge(tuned.astype({"key": object}),
+                                                           on="key", how="left")
         frame["tuned"] = frame["tuned"].eq(True)
         return pd.concat([frame, metrics], axis=1)
 

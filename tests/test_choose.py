@@ -72,7 +72,7 @@ def test_pure_noise_is_undecided_or_equivalent_never_a_winner_by_low_power(tmp_p
     noise().to_csv(tmp_path / "noise.csv", index=False)
     rec = choose(str(tmp_path / "noise.csv"), target="y", budget=90, out=tmp_path / "out",
                  echo=lambda s: None, progress=False)
-    assert len(rec.plan["strategies"]) == 7
+    assert len([s for s in rec.plan["strategies"] if not s.endswith("-tuned")]) == 7
     # 250 rows of noise: fold-to-fold spread is wide, so no strategy can be shown within
     # ±0.01 accuracy of the best: the recommendation is undecided and says what would help
     assert rec.pick == "" and "undecided" in rec.sentences[1]
