@@ -660,7 +660,7 @@ class Store:
     @reported
     def curve_points(self, datasets: Iterable[str]) -> pd.DataFrame:
         """The ensemble-size curves of the successful cells of the latest plan on
-        ``datasets``, one row per point: ``dataset, strategy, members, score``."""
+        ``datasets``, one row per point: ``key, dataset, strategy, members, score``."""
         names = list(datasets)
         plan = self._plan_keys()
         cursor = self.db.execute(
@@ -673,11 +673,12 @@ class Store:
             lengths = [len(c) for c in curves]
             points = np.array([p for c in curves for p in c], dtype=float).reshape(-1, 2)
             parts.append(pd.DataFrame({
+                "key": np.repeat([r[0] for r in rows], lengths),
                 "dataset": np.repeat([r[1] for r in rows], lengths),
                 "strategy": np.repeat([r[2] for r in rows], lengths),
                 "members": points[:, 0].astype(int), "score": points[:, 1]}))
         return (pd.concat(parts, ignore_index=True) if parts else
-                pd.DataFrame(columns=["dataset", "strategy", "members", "score"]))
+                pd.DataFrame(columns=["key", "dataset", "strategy", "members", "score"]))
 
     @reported
     def match_cells(self, other: "Store") -> CellMatch:

@@ -120,3 +120,10 @@ def test_dropped_names_appear_nowhere_a_user_reads(old):
               *ROOT.glob("benchmarks/*.py"), *(ROOT / "harness").rglob("*.py")]
     found = [str(p.relative_to(ROOT)) for p in places if old in p.read_text(encoding="utf-8")]
     assert not found, found
+
+
+def test_the_statistics_snippet_runs():
+    """The README's Python example of the statistics runs as written."""
+    snippet = next(b for b in re.findall(r"```python\n(.*?)```", README, flags=re.S)
+                   if "harness.analysis import" in b)
+    exec(compile(snippet, "README.md", "exec"), {})

@@ -5,8 +5,12 @@ search runs).
   among the first b trials (b = 1, 2, 4, … up to the trials run) with its mean inner score,
   averaged over the outer folds.
 - Gains: per dataset and tuned strategy, tuned minus untuned on the dataset's first metric,
-  paired by outer fold, with the corrected resampled t-test (`stats.corrected_t`): the
-  untuned score is the refit of the first trial, the configuration as given.
+  paired by outer fold (the untuned score is the refit of the first trial, the configuration
+  as given), judged like every other pair (`harness.analysis.per_dataset`): the Bayesian
+  correlated t-test gives the probabilities that tuning helped, made no practical difference
+  (the metric's region of practical equivalence) or hurt, and the outcome is the one whose
+  probability reaches the certainty, else undecided; the corrected resampled t-test's
+  interval and p-value stand beside it.
 - Ranking: average ranks across datasets with every tuned strategy untuned and tuned.
 - Stability: the value each outer fold chose for each tuned parameter.
 """
@@ -16,13 +20,14 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
-from harness.analysis import stats
+from harness.analysis import bayes, stats
 from harness.analysis.results import ok_cells
 from harness.analysis.verdict import ALPHA, complete_block
 from harness.search import best_of, budget_steps
 from harness.work_units import OK
 
-BETTER, WORSE, UNDECIDED = "better after tuning", "worse after tuning", "undecided"
+BETTER, WORSE = "better after tuning", "worse after tuning"
+EQUIVALENT, UNDECIDED = "practically equivalent", "undecided"
 UNCHANGED = "unchanged (the same outer score on every fold)"
 
 
@@ -86,13 +91,17 @@ def untuned_scores(cells: pd.DataFrame, refits: pd.DataFrame) -> pd.DataFrame:
 
 
 def gains(cells: pd.DataFrame, refits: pd.DataFrame, primary: dict[str, str],
-          alpha: float = ALPHA) -> pd.DataFrame:
+          margins: dict, certainty: float, alpha: float = ALPHA) -> pd.DataFrame:
     """Per dataset × tuned strategy: ``dataset, strategy, family, metric, folds, untuned,
-    tuned, gain, low, high, p, outcome, sd, search_seconds, refit_seconds`` — gain = tuned −
-    untuned (mean over the outer folds both have), its corrected interval and p-value;
-    ``sd`` is the fold-to-fold sd of the untuned score (the dataset's noise)."""
+    tuned, gain, low, high, p, p_worse, p_equivalent, p_better, margin, outcome, sd,
+    search_seconds, refit_seconds`` — gain = tuned − untuned (mean over the outer folds both
+    have), its corrected interval and p-value, the posterior probabilities of the correlated
+    t-test with the metric's region (``margins``: metric → `harness.scorers.Margin`, taken on
+    the better of the two means) and the outcome at ``certainty``; ``sd`` is the fold-to-fold
+    sd of the untuned score (the dataset's noise)."""
     cols = ["dataset", "strategy", "family", "metric", "folds", "untuned", "tuned", "gain", "low",
-            "high", "p", "outcome", "sd", "search_seconds", "refit_seconds"]
+            "high", "p", "p_worse", "p_equivalent", "p_better", "margin", "outcome", "sd",
+            "search_seconds", "refit_seconds"]
     ok = ok_cells(cells)
     ok = ok[ok["tuned"]]
     base = untuned_scores(cells, refits)
@@ -109,7 +118,9 @@ def gains(cells: pd.DataFrame, refits: pd.DataFrame, primary: dict[str, str],
         t, u = pair[metric].to_numpy(float), pair[metric + "_untuned"].to_numpy(float)
         row = {"dataset": ds, "strategy": st, "family": part["family"].iloc[0], "metric": metric,
                "folds": len(pair), "untuned": u.mean(), "tuned": t.mean(), "gain": (t - u).mean(),
-               "low": np.nan, "high": np.nan, "p": np.nan, "outcome": UNDECIDED,
+               "low": np.nan, "high": np.nan, "p": np.nan, "p_worse": np.nan,
+               "p_equivalent": np.nan, "p_better": np.nan,
+               "margin": margins[metric].on(max(t.mean(), u.mean())), "outcome": UNDECIDED,
                "sd": float(np.std(u, ddof=1)) if len(u) > 1 else np.nan,
                "search_seconds": float(part["search_seconds"].mean()),
                "refit_seconds": float(part["refit_seconds"].mean())}
@@ -118,27 +129,33 @@ def gains(cells: pd.DataFrame, refits: pd.DataFrame, primary: dict[str, str],
                 row.update(low=0.0, high=0.0, p=1.0, outcome=UNCHANGED)
             else:
                 d = t - u
-                _, p, low, high = stats.corrected_t(
-                    d.mean(), d.var(ddof=1), len(d),
-                    float(pair["n_test"].mean()) / float(pair["n_train"].mean()), alpha)
-                row.update(low=float(low), high=float(high), p=float(p))
-                if p <= alpha:
-                    row["outcome"] = BETTER if d.mean() > 0 else WORSE
+                ratio = float(pair["n_test"].mean()) / float(pair["n_train"].mean())
+                _, p, low, high = stats.corrected_t(d.mean(), d.var(ddof=1), len(d), ratio,
+                                                    alpha)
+                worse, same, better = bayes.correlated_t(d.mean(), d.var(ddof=1), len(d),
+                                                         ratio, row["margin"])
+                row.update(low=float(low), high=float(high), p=float(p), p_worse=float(worse),
+                           p_equivalent=float(same), p_better=float(better))
+                for prob, word in ((better, BETTER), (same, EQUIVALENT), (worse, WORSE)):
+                    if prob >= certainty:
+                        row["outcome"] = word
         rows.append(row)
     return pd.DataFrame(rows, columns=cols)
 
 
 def gain_summary(g: pd.DataFrame) -> pd.DataFrame:
-    """Per tuned strategy across datasets: ``strategy, family, datasets, better, undecided,
-    worse, median_gain_sd`` (the median gain in units of each dataset's fold-to-fold sd;
-    ``undecided`` counts unchanged results too)."""
-    cols = ["strategy", "family", "datasets", "better", "undecided", "worse", "median_gain_sd"]
+    """Per tuned strategy across datasets: ``strategy, family, datasets, better, equivalent,
+    undecided, worse, median_gain_sd`` (the median gain in units of each dataset's
+    fold-to-fold sd; ``equivalent`` counts unchanged results too)."""
+    cols = ["strategy", "family", "datasets", "better", "equivalent", "undecided", "worse",
+            "median_gain_sd"]
     rows = []
     for st, part in g.groupby("strategy", sort=False):
         scaled = part["gain"] / part["sd"].where(part["sd"] > 0)
         rows.append({"strategy": st, "family": part["family"].iloc[0], "datasets": len(part),
                      "better": int((part["outcome"] == BETTER).sum()),
-                     "undecided": int(part["outcome"].isin([UNDECIDED, UNCHANGED]).sum()),
+                     "equivalent": int(part["outcome"].isin([EQUIVALENT, UNCHANGED]).sum()),
+                     "undecided": int((part["outcome"] == UNDECIDED).sum()),
                      "worse": int((part["outcome"] == WORSE).sum()),
                      "median_gain_sd": float(scaled.median()) if scaled.notna().any()
                      else np.nan})

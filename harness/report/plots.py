@@ -187,12 +187,17 @@ def rank_vs_fit_time(ranks: pd.Series, costs: pd.DataFrame, n_datasets: int) -> 
 def size_curves(points: pd.DataFrame, primary: dict[str, str],
                 cells: pd.DataFrame) -> Figure | None:
     """Per dataset: mean test score against the number of ensemble members (log axis).
-    ``points``: one row per curve point of a successful cell (``dataset, strategy, members,
-    score``; `harness.store.Store.curve_points`); ``cells``: the results frame of those
-    datasets, for each strategy's family and colour."""
+    ``points``: one row per curve point of a successful cell (``key, dataset, strategy,
+    members, score``; `harness.store.Store.curve_points`); ``cells``: the results frame of
+    those datasets, for each strategy's family and colour. Only sizes every fold's curve has
+    are shown (folds of a tuned strategy end at different sizes; a mean over some of them
+    would jump), as `harness.analysis.curves.mean_curve` does."""
     if points.empty:
         return None
-    means = points.groupby(["dataset", "strategy", "members"])["score"].mean().reset_index()
+    group = ["dataset", "strategy", "members"]
+    folds = points.groupby(["dataset", "strategy"])["key"].transform("nunique")
+    have = points.groupby(group)["key"].transform("nunique")
+    means = points[have == folds].groupby(group)["score"].mean().reset_index()
     family = cells.drop_duplicates("strategy").set_index("strategy")["family"]
     fig, panels, colors = dataset_panels(means, colors_from=cells)
     handles = {}

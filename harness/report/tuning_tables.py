@@ -20,7 +20,7 @@ def _read_gain(metric: str, gain, low, high) -> str:
     return interval(gain, low, high)
 
 
-def gains(g: pd.DataFrame, alpha: float) -> Table:
+def gains(g: pd.DataFrame, alpha: float, certainty: float) -> Table:
     rows, classes = [], []
     for _, r in g.iterrows():
         rows.append({"dataset": r["dataset"], "strategy": r["strategy"],
@@ -28,7 +28,11 @@ def gains(g: pd.DataFrame, alpha: float) -> Table:
                      "tuned": number(as_read(r["metric"], r["tuned"])),
                      "tuned − untuned [interval]": _read_gain(r["metric"], r["gain"], r["low"],
                                                               r["high"]),
-                     "p": p_text(r["p"]), "outcome": r["outcome"], "outer folds": r["folds"],
+                     "p": p_text(r["p"]),
+                     "P(better / equivalent / worse)": "" if pd.isna(r["p_better"]) else
+                     f"{r['p_better']:.2f} / {r['p_equivalent']:.2f} / {r['p_worse']:.2f}",
+                     "region ±": number(r["margin"], 3),
+                     "outcome": r["outcome"], "outer folds": r["folds"],
                      "search s": number(r["search_seconds"], 3),
                      "refit s": number(r["refit_seconds"], 3)})
         classes.append({BETTER: "best", WORSE: "worse"}.get(r["outcome"], ""))
@@ -38,8 +42,12 @@ def gains(g: pd.DataFrame, alpha: float) -> Table:
                  intro=("Untuned: the configuration as given (or the library's defaults), "
                         "refit on each outer training part. Tuned: the search's choice, refit "
                         "the same way. Difference tuned − untuned over the outer folds with its "
-                        f"{1 - alpha:.0%} corrected interval; outcome by the corrected "
-                        f"resampled t-test at α = {alpha:g}. Search s: the whole search per "
+                        f"{1 - alpha:.0%} corrected interval and the corrected resampled "
+                        "t-test's p. Outcome, as for every pair: the Bayesian correlated "
+                        "t-test's probabilities that tuning helped, made no difference beyond "
+                        "the metric's region of practical equivalence (region ±, in the "
+                        "metric's units), or hurt; the outcome is the one that reaches "
+                        f"{certainty:.0%}, else undecided. Search s: the whole search per "
                         "outer fold; refit s: the final fit alone (what production training "
                         "costs)."))
 
@@ -81,18 +89,20 @@ def stability(st: pd.DataFrame) -> Table:
                         "budget too small to find its peak."))
 
 
-def sentences(g: pd.DataFrame, s: pd.DataFrame, r: pd.DataFrame, alpha: float) -> list[str]:
+def sentences(g: pd.DataFrame, s: pd.DataFrame, r: pd.DataFrame,
+              certainty: float) -> list[str]:
     """The short verdict per tuned strategy, and one on the ranking."""
     out = []
     for _, x in s.iterrows():
         parts = [f"{label} on {int(x[col])}" for label, col in
-                 (("better after tuning", "better"), ("undecided", "undecided"),
+                 (("better after tuning", "better"),
+                  ("practically equivalent", "equivalent"), ("undecided", "undecided"),
                   ("worse", "worse")) if x[col]]
         gain = ("" if not np.isfinite(x["median_gain_sd"]) else
                 f"; median gain {x['median_gain_sd']:.2f} fold-to-fold sd")
         out.append(f"{x['strategy']}: {', '.join(parts)} of {int(x['datasets'])} dataset"
-                   f"{'s' if x['datasets'] != 1 else ''} (corrected resampled t-test, "
-                   f"α = {alpha:g}){gain}.")
+                   f"{'s' if x['datasets'] != 1 else ''} (Bayesian correlated t-test, "
+                   f"certainty {certainty:.0%}){gain}.")
     if len(r) >= 2:
         n = int(r["datasets"].iloc[0])
         change = r["rank_untuned"] - r["rank_tuned"]

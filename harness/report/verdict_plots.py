@@ -81,7 +81,7 @@ def probability_bars(v: Verdict) -> Figure | None:
         return None
     a = drawn_pairs(v).iloc[::-1]
     labels = [f"{plain(x)}  vs  {plain(y)}" for x, y in zip(a["a"], a["b"])]
-    fig = Figure(figsize=(9.0, 1.3 + 0.34 * len(a)))
+    fig = Figure(figsize=(9.0, 2.0 + 0.34 * len(a)))
     ax = fig.subplots()
     pos = np.arange(len(a))
     left = np.zeros(len(a))
@@ -101,9 +101,12 @@ def probability_bars(v: Verdict) -> Figure | None:
     ax.set_xlim(0, 1)
     ax.set_xlabel(f"probability — a verdict needs one colour to span both dotted lines "
                   f"(certainty {v.certainty:.0%})")
-    ax.set_title(f"Which is better across {len(v.matrix)} datasets (Bayesian signed-rank "
+    # a figure title, centred on the whole figure: an axes title over long pair labels
+    # would run off the right edge
+    fig.suptitle(f"Which is better across {len(v.matrix)} datasets\n(Bayesian signed-rank "
                  "test; pairs as first vs second)", fontsize=10)
     fig.legend(*ax.get_legend_handles_labels(), loc="lower center", ncol=3, frameon=False,
                fontsize=8)
-    fig.tight_layout(rect=(0, 0.35 / fig.get_size_inches()[1], 1, 1))
+    height = fig.get_size_inches()[1]
+    fig.tight_layout(rect=(0, 0.35 / height, 1, 1 - 0.55 / height))
     return fig

@@ -147,16 +147,16 @@ def _gone(run: dict | None) -> dict | None:
 def _tuning(frame: pd.DataFrame, trials: pd.DataFrame, refits: pd.DataFrame, v: Verdict,
             out: Outputs, draw) -> list[Table]:
     """The tables, figure and sentences of what tuning buys."""
-    g = tuning.gains(frame, refits, v.primary, v.alpha)
+    g = tuning.gains(frame, refits, v.primary, v.margins, v.certainty, v.alpha)
     s = tuning.gain_summary(g)
     r = tuning.ranking_change(frame, refits, v.primary)
     st = tuning.stability(frame)
-    out.tuning = tuning_tables.sentences(g, s, r, v.alpha)
+    out.tuning = tuning_tables.sentences(g, s, r, v.certainty)
     curves = tuning.mean_curves(tuning.tuning_curves(trials, refits, v.primary))
     curves = curves.merge(frame[["strategy", "method", "family"]].drop_duplicates("strategy"),
                           on="strategy")
     draw("tuning_curves", plots.tuning_curves(curves, v.primary))
-    found = [tuning_tables.gains(g, v.alpha), tuning_tables.summary(s)]
+    found = [tuning_tables.gains(g, v.alpha, v.certainty), tuning_tables.summary(s)]
     if not r.empty:
         found.append(tuning_tables.ranking(r))
     if not st.empty:
