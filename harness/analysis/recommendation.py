@@ -16,7 +16,6 @@ import json
 from dataclasses import asdict, dataclass, field
 from typing import Any
 
-import numpy as np
 import pandas as pd
 
 from harness.analysis.curves import CurveAdvice, curve_advice

@@ -18,7 +18,7 @@ from harness.execution.local import LocalExecutor
 from harness.execution.memory import ENFORCED, cell_limit
 from harness.plan import cell_splits
 from harness.report.outputs import Outputs
-from harness.work_units import OK, Cell
+from harness.work_units import Cell
 
 TIMING = "cells side by side, one thread each"
 

@@ -126,6 +126,13 @@ class Table:
 
     _groups: list | None = field(default=None, init=False, repr=False, compare=False)
 
+    @classmethod
+    def per_dataset(cls, name: str, title: str, data: pd.DataFrame, rows: list[dict],
+                    classes: list[str], titles: dict[str, str], intro: str) -> "Table":
+        """A table of display ``rows`` (each with a ``dataset``), one section per dataset."""
+        return cls(name, title, data, pd.DataFrame(rows), group="dataset" if rows else None,
+                   group_titles=titles, row_classes=classes, intro=intro)
+
     def groups(self) -> list[tuple[str | None, pd.DataFrame, list[str] | None]]:
         """(group value or None, its display rows without the group column, row classes);
         worked out once per table."""

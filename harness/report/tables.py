@@ -173,9 +173,9 @@ def pairs(v: Verdict) -> Table:
     titles = {ds: f"{ds}: {metric_heading(m)}, region ±{number(w)}"
               for ds, m, w in zip(v.intervals["dataset"], v.intervals["metric"],
                                   v.intervals["margin"]) if pd.notna(w)}
-    return Table("pairs", "Pairwise verdicts per dataset", v.pairs, pd.DataFrame(rows),
-                 group="dataset" if rows else None, group_titles=titles, row_classes=classes,
-                 intro=("Verdict from the Bayesian correlated t-test over the (repeat, fold) "
+    return Table.per_dataset("pairs", "Pairwise verdicts per dataset", v.pairs, rows, classes,
+                             titles,
+                             intro=("Verdict from the Bayesian correlated t-test over the (repeat, fold) "
                         "cells both strategies have (one split: the Bayesian t posterior over "
                         "the test rows): better when P(a better) or P(b better) reaches "
                         f"{v.certainty:.0%}, practically equivalent when P(equivalent) does, "

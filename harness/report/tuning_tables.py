@@ -37,9 +37,9 @@ def gains(g: pd.DataFrame, alpha: float, certainty: float) -> Table:
                      "refit s": number(r["refit_seconds"], 3)})
         classes.append({BETTER: "best", WORSE: "worse"}.get(r["outcome"], ""))
     titles = {ds: f"{ds}: {metric_heading(m)}" for ds, m in zip(g["dataset"], g["metric"])}
-    return Table("tuning_gains", "What tuning buys, per dataset", g, pd.DataFrame(rows),
-                 group="dataset" if rows else None, group_titles=titles, row_classes=classes,
-                 intro=("Untuned: the configuration as given (or the library's defaults), "
+    return Table.per_dataset("tuning_gains", "What tuning buys, per dataset", g, rows,
+                             classes, titles,
+                             intro=("Untuned: the configuration as given (or the library's defaults), "
                         "refit on each outer training part. Tuned: the search's choice, refit "
                         "the same way. Difference tuned − untuned over the outer folds with its "
                         f"{1 - alpha:.0%} corrected interval and the corrected resampled "
