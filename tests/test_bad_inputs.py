@@ -9,12 +9,13 @@ copy of one small finished run (`stored_run`)."""
 from __future__ import annotations
 
 import shutil
-import sqlite3
 import textwrap
 from pathlib import Path
 
 import numpy as np
 import pytest
+
+from tests.sqlite_files import opened
 
 from harness import run_suite
 from harness.cli import main
@@ -112,9 +113,8 @@ def damaged_pages(src: Path, tmp: Path):
 
 def missing_column(src: Path, tmp: Path):
     folder = copy_store(src, tmp)
-    with sqlite3.connect(folder / "cells.sqlite") as db:
+    with opened(folder / "cells.sqlite") as db:
         db.execute("ALTER TABLE cells DROP COLUMN fit_seconds")
-    db.close()
     return ["report", str(folder)], [str(folder / "cells.sqlite"), "fit_seconds"]
 
 
@@ -128,9 +128,8 @@ def truncated(src: Path, tmp: Path):
 def foreign(src: Path, tmp: Path):
     folder = tmp / "theirs"
     folder.mkdir()
-    with sqlite3.connect(folder / "cells.sqlite") as db:
+    with opened(folder / "cells.sqlite") as db:
         db.execute("CREATE TABLE invoices (id INTEGER, total REAL)")
-    db.close()
     return ["report", str(folder)], [str(folder / "cells.sqlite"), "not a woodlot results store"]
 
 
@@ -143,9 +142,8 @@ def garbage(src: Path, tmp: Path):
 
 def other_schema(src: Path, tmp: Path):
     folder = copy_store(src, tmp)
-    with sqlite3.connect(folder / "cells.sqlite") as db:
+    with opened(folder / "cells.sqlite") as db:
         db.execute("UPDATE meta SET value='1' WHERE key='schema'")
-    db.close()
     path = suite(tmp)
     return ["run", str(path), "--out", str(folder), "--quiet"], [str(folder / "cells.sqlite"),
                                                                  "store schema 1"]

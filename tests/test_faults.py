@@ -17,6 +17,8 @@ from pathlib import Path
 import psutil
 import pytest
 
+from tests.sqlite_files import opened
+
 from harness import load_results, run_suite
 from harness.cli import main
 from harness.folder_lock import LOCK_NAME
@@ -66,7 +68,7 @@ def woodlot(*args: str, limit_file_size: int | None = None, **kw) -> subprocess.
 
 def stored(db: Path) -> int:
     try:
-        with sqlite3.connect(f"file:{db}?mode=ro", uri=True) as con:
+        with opened(db, read_only=True) as con:
             return con.execute("SELECT COUNT(*) FROM cells").fetchone()[0]
     except sqlite3.Error:
         return 0
@@ -90,7 +92,7 @@ def started(tmp: Path, body: str, cells: int, *extra: str) -> tuple[subprocess.P
 
 
 def integrity(db: Path) -> str:
-    with sqlite3.connect(db) as con:
+    with opened(db) as con:
         return con.execute("PRAGMA integrity_check").fetchone()[0]
 
 
@@ -253,7 +255,7 @@ def test_crafted_store_runs_no_code_and_is_not_changed(tmp_path, write_suite, ca
     path = write_suite(WINE.format(protocol="") + strategy("t", "WrongShape"))
     out = tmp_path / "theirs"
     run_suite(path, out=out, jobs=1, progress=False, echo=lambda line: None)
-    with sqlite3.connect(out / "cells.sqlite") as db:
+    with opened(out / "cells.sqlite") as db:
         db.execute("CREATE TABLE seen (what TEXT)")
         db.execute("CREATE TRIGGER t AFTER INSERT ON runs BEGIN INSERT INTO seen VALUES "
                    "('trigger'); END")

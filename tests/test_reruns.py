@@ -5,12 +5,13 @@ reads checked against plain pandas readings of the same store."""
 from __future__ import annotations
 
 import json
-import sqlite3
 import time
 
 import numpy as np
 import pandas as pd
 import pytest
+
+from tests.sqlite_files import opened
 
 from harness import load_results, run_suite
 from harness.cli import main
@@ -61,7 +62,7 @@ def test_a_rerun_that_fits_nothing_leaves_the_outputs_as_they_are(finished, caps
 ])
 def test_any_change_to_what_the_report_reads_rewrites_the_outputs(finished, change):
     path, out = finished
-    with sqlite3.connect(out / "cells.sqlite") as db:  # even a write from outside woodlot
+    with opened(out / "cells.sqlite") as db:  # even a write from outside woodlot
         db.execute(change)
     assert up_to_date(out) is None
     again = run_suite(path, out=out, jobs=2, progress=False)
@@ -154,7 +155,7 @@ def test_cells_frame_matches_a_plain_pandas_reading(finished):
     """The chunked reading with one JSON parse per chunk, against pandas' own SQL reader and
     one json.loads per row."""
     _, out = finished
-    with sqlite3.connect(out / "cells.sqlite") as db:
+    with opened(out / "cells.sqlite") as db:
         raw = pd.read_sql_query("SELECT * FROM cells WHERE key IN (SELECT key FROM plan) "
                                 "ORDER BY dataset, strategy, repeat, fold", db)
     metrics = pd.DataFrame([json.loads(s) for s in raw.pop("scores")])

@@ -12,6 +12,8 @@ import numpy as np
 import pandas as pd
 import pytest
 
+from tests.sqlite_files import opened
+
 from harness import load_results, run_suite
 from harness.cli import main
 from tests.conftest import SMALL_SUITE
@@ -89,7 +91,7 @@ def test_error_and_timeout_cells_do_not_stop_the_run(write_suite, tmp_path):
 
 def _stored(db) -> int:
     try:
-        with sqlite3.connect(db) as con:
+        with opened(db) as con:
             return con.execute("SELECT COUNT(*) FROM cells").fetchone()[0]
     except sqlite3.Error:
         return 0

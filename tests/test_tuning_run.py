@@ -4,11 +4,11 @@ executor, and the report's tuning section."""
 
 from __future__ import annotations
 
-import sqlite3
-
 import numpy as np
 import pandas as pd
 import pytest
+
+from tests.sqlite_files import opened
 
 import harness
 from harness.commands.run import run_suite
@@ -75,7 +75,7 @@ class StopAfter(Executor):
 
 
 def trial_rows(folder) -> list[tuple]:
-    with sqlite3.connect(folder / "cells.sqlite") as db:
+    with opened(folder / "cells.sqlite") as db:
         return db.execute("SELECT search, key, status, inner_score, worker FROM trials "
                           "ORDER BY search, key").fetchall()
 
