@@ -408,3 +408,15 @@ def test_identical_is_equivalent_real_difference_better_tiny_undecided(run_once)
     md = (result.folder / "tables" / "pairs.md").read_text()
     assert "P(equivalent)" in md and "region ±0.01" in md
     assert "undecided" in md and "practically equivalent" in md
+
+
+def test_the_datasets_hint_names_every_estimate_it_has():
+    # the rough estimates of the undecided pairs: a range of the ones up to 200, a word for
+    # those beyond, nothing for pairs without an estimate (0)
+    need = lambda *xs: pd.DataFrame({"datasets_needed": list(xs)})  # noqa: E731
+    assert words.datasets_hint(need(12, 60, 12)) == (
+        " — more datasets would decide it: about 12 to 60 in all, if new ones behave like these")
+    assert "about 12 to 60 in all (more than 200 for some pairs)" in words.datasets_hint(
+        need(12, 60, 250))
+    assert words.datasets_hint(need(250)).startswith(" — more than 200 datasets")
+    assert words.datasets_hint(need(0)) == "" and words.datasets_hint(need()) == ""

@@ -66,7 +66,7 @@ def scores(frame: pd.DataFrame) -> Table:
 
 def costs(frame: pd.DataFrame) -> Table:
     """Per dataset × strategy: mean fit wall and CPU seconds, prediction time per 1,000 rows,
-    peak fit memory and pickled model size."""
+    memory added by the fit and pickled model size."""
     ok = ok_cells(frame).copy()
     cols = ["dataset", "strategy", "family", "fit_seconds", "fit_cpu_seconds", "refit_seconds",
             "predict_ms_per_1000_rows", "peak_memory_mib", "model_mib", "cells"]
@@ -90,10 +90,14 @@ def costs(frame: pd.DataFrame) -> Table:
         "fit_seconds": "fit s", "fit_cpu_seconds": "fit CPU s",
         "refit_seconds": "of which final refit s",
         "predict_ms_per_1000_rows": "predict ms / 1,000 rows",
-        "peak_memory_mib": "peak fit memory MiB", "model_mib": "model MiB"})
+        "peak_memory_mib": "memory added by fit MiB", "model_mib": "model MiB"})
     return Table("costs", "Training and prediction cost (means over folds)", data, display,
                  group="dataset",
-                 intro="Times measured with cells running side by side, one thread each."
+                 intro="Times measured with cells running side by side, one thread each. "
+                 "Memory added by fit: the peak resident memory of the worker during the fit "
+                 "minus its resident memory before it (0 when the fit found enough memory the "
+                 "worker already held; empty where the system cannot reset the peak). Model: "
+                 "the pickled size of the fitted pipeline."
                  + (" A tuned strategy's fit time is its whole search (every trial on the "
                     "inner folds) plus the refit of the chosen configuration; the refit "
                     "alone, what production training costs, is shown beside it."

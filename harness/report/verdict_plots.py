@@ -71,7 +71,7 @@ def triangles(v: Verdict, max_cols: int = 4) -> Figure | None:
         ax.set_visible(False)
     fig.suptitle(f"Posterior of the Bayesian signed-rank test per pair ({len(v.matrix)} "
                  "datasets); corner labels: the probability of each outcome", fontsize=10)
-    fig.tight_layout(rect=(0, 0, 1, 1 - 0.5 / fig.get_size_inches()[1]))
+    fig.tight_layout()  # it leaves room for the suptitle itself
     return fig
 
 
@@ -108,5 +108,5 @@ def probability_bars(v: Verdict) -> Figure | None:
     fig.legend(*ax.get_legend_handles_labels(), loc="lower center", ncol=3, frameon=False,
                fontsize=8)
     height = fig.get_size_inches()[1]
-    fig.tight_layout(rect=(0, 0.35 / height, 1, 1 - 0.55 / height))
+    fig.tight_layout(rect=(0, 0.35 / height, 1, 1))  # it leaves room for the suptitle itself
     return fig

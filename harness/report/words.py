@@ -83,16 +83,18 @@ def rank_places(ranks) -> dict[str, str]:
     return out
 
 
-def _datasets_hint(rows) -> str:
+def datasets_hint(rows) -> str:
+    """How many datasets in all would decide the undecided pairs (their ``datasets_needed``;
+    0 = no estimate), as the tail of the short answer's sentence."""
     need = [int(r["datasets_needed"]) for _, r in rows.iterrows()]
-    if not need:
-        return ""
-    known = [x for x in need if x <= 200]
+    known = [x for x in need if 0 < x <= 200]
+    beyond = any(x > 200 for x in need)
     if not known:
-        return " — more than 200 datasets would be needed at these differences"
+        return " — more than 200 datasets would be needed at these differences" if beyond else ""
     return (f" — more datasets would decide it: about {min(known)}"
-            + (f" to {max(known)}" if max(known) != min(known) else "") + " in all, if new "
-            "ones behave like these")
+            + (f" to {max(known)}" if max(known) != min(known) else "") + " in all"
+            + (" (more than 200 for some pairs)" if beyond else "")
+            + ", if new ones behave like these")
 
 
 def bottom_line(v: Verdict) -> list[str]:
@@ -126,7 +128,7 @@ def bottom_line(v: Verdict) -> list[str]:
         parts.append(f"worse than {names(beaten)}")
     if len(open_):
         parts.append(f"undecided against {names([other(r) for _, r in open_.iterrows()])}"
-                     + _datasets_hint(open_))
+                     + datasets_hint(open_))
     body = f"{lead} is " + "; ".join(parts) + "."
     how = (f"Judged by the Bayesian signed-rank test on each dataset's first metric, with a "
            f"{region(v)}.")
