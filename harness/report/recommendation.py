@@ -95,7 +95,7 @@ def sentences(rec: Recommendation) -> list[str]:
         out.append(f"Recommendation: {rec.pick} — the cheapest to train of the strategies "
                    f"whose probability of being {region} reaches {rec.certainty:.0%} "
                    f"({rec.pick}: {_pct(by[rec.pick]['p_near_best'])}"
-                   + (f"; also qualifying: " + ", ".join(
+                   + ("; also qualifying: " + ", ".join(
                        f"{s} {_pct(by[s]['p_near_best'])}" for s in others) if others else "")
                    + ").")
         if rec.pick != rec.best:
