@@ -27,14 +27,15 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass, field
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
-from sklearn.model_selection import KFold, ParameterSampler, StratifiedKFold
 
 from harness.spaces import HALVING, Tuning, space_distributions
-from harness.strategies import Strategy, canonical
 from harness.work_units import Cell, unit_key
+
+if TYPE_CHECKING:  # the strategies bring scikit-learn; reading results needs neither
+    from harness.strategies import Strategy
 
 SEARCH_FORMAT = 1  # bump when the meaning of a stored trial or refit changes
 MIN_HALVING_ROWS = 20  # the fewest training rows a first halving round fits on
@@ -42,6 +43,8 @@ MIN_HALVING_ROWS = 20  # the fewest training rows a first halving round fits on
 
 def inner_splitter(task: str, folds: int, seed: int):
     """The inner splitter of every search on a dataset (shuffled, seeded)."""
+    from sklearn.model_selection import KFold, StratifiedKFold
+
     cls = StratifiedKFold if task == "classification" else KFold
     return cls(n_splits=folds, shuffle=True, random_state=seed)
 
@@ -62,6 +65,8 @@ def configurations(tuning: Tuning, task: str, seed: int) -> list[dict[str, Any]]
     n = tuning.planned_trials - 1
     if n <= 0 or not space:
         return [{}]
+    from sklearn.model_selection import ParameterSampler
+
     drawn = ParameterSampler(space_distributions(space), n_iter=n, random_state=seed)
     return [{}] + [{k: _plain(v) for k, v in c.items()} for c in drawn]
 
@@ -158,6 +163,8 @@ class Search:
 
     def _estimator(self, number: int) -> str:
         if number not in self._described:
+            from harness.strategies import canonical
+
             self._described[number] = canonical(self.configured(number).build(
                 self.cell.task, self.cell.seed))
         return self._described[number]

@@ -13,13 +13,12 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
-from sklearn.metrics import get_scorer_names
 
 from harness.datasets import SOURCES, DatasetSpec
 from harness.datasets.openml import expand_benchmark_suite
 from harness.errors import UserError, closest
 from harness.names import RULE, is_name
-from harness.scorers import Margin, default_margin, metric_task
+from harness.scorers import Equivalence, metric_task, parse_equivalence, scorer_names
 from harness.spaces import HALVING, SEARCHES, Tuning, default_space, parse_range
 from harness.strategies import Strategy, resolve, split_by_task
 
@@ -30,7 +29,6 @@ DEFAULT_METRICS = {"classification": ("accuracy", "balanced_accuracy", "neg_log_
 SECTIONS = ("suite", "protocol", "also_measure", "equivalence", "tuning", "dataset",
             "strategy", "speedup")
 DATA_SUFFIXES = (".csv", ".tsv", ".txt", ".parquet", ".pq")
-DEFAULT_CERTAINTY = 0.95
 SEED_MAX = 2**32 - 1  # NumPy's RandomState, which scikit-learn seeds, takes 0 .. 2**32 - 1
 AUTO = "auto"  # cell_memory: derived from the machine's memory and the number of workers
 
@@ -62,29 +60,6 @@ class AlsoMeasure:
     def settings(self) -> dict[str, Any]:
         return {"memory": self.memory, "model_size": self.model_size,
                 "size_curve": self.size_curve, "curve_points": self.curve_points}
-
-
-@dataclass(frozen=True)
-class Equivalence:
-    """The ``[equivalence]`` section: per metric, the smallest difference that matters (the
-    half-width of its region of practical equivalence), and the probability a verdict needs
-    (``certainty``). Metrics not named get `harness.scorers.default_margin`."""
-
-    margins: dict[str, Margin] = field(default_factory=dict)
-    certainty: float = DEFAULT_CERTAINTY
-
-    def margin(self, metric: str) -> Margin:
-        return self.margins.get(metric) or default_margin(metric)
-
-    def settings(self) -> dict[str, Any]:
-        """As stored in a run's provenance (and read back by `from_settings`)."""
-        return {"certainty": self.certainty,
-                **{m: margin.setting() for m, margin in self.margins.items()}}
-
-    @classmethod
-    def from_settings(cls, settings: dict[str, Any] | None, where: str = "provenance") \
-            -> "Equivalence":
-        return _equivalence(settings or {}, where)
 
 
 @dataclass(frozen=True)
@@ -282,7 +257,7 @@ def load_suite(path: str | Path, *, expand: bool = True) -> Suite:
     if not 2 <= also.curve_points <= 1000:
         raise UserError(f"must be between 2 and 1000, got {also.curve_points}",
                         file=f"{path}: [also_measure]", field="curve_points")
-    equivalence = _equivalence(data.get("equivalence", {}), f"{path}: [equivalence]")
+    equivalence = parse_equivalence(data.get("equivalence", {}), f"{path}: [equivalence]")
     tuning = _tuning(data.get("tuning"), f"{path}: [tuning]")
     datasets = _datasets(data.get("dataset", []), path, expand)
     strategies = _strategies(data.get("strategy", []), path, tuning)
@@ -404,7 +379,7 @@ def _protocol(table: Any, where: str) -> Protocol:
         raise UserError(f"'{key}' applies to splits = \"holdout\" only", file=where, field=key)
     metrics = dict(DEFAULT_METRICS)
     if "metrics" in t:
-        known = set(get_scorer_names())
+        known = scorer_names()
         for task, names in t["metrics"].items():
             if task not in DEFAULT_METRICS:
                 raise UserError(f"metrics are given per task: 'classification' or 'regression', "
@@ -429,43 +404,6 @@ def _protocol(table: Any, where: str) -> Protocol:
     if "cell_memory" in t:
         t["cell_memory"] = parse_size(t["cell_memory"], where, "cell_memory")
     return Protocol(**t)
-
-
-def _equivalence(table: Any, where: str) -> Equivalence:
-    """``certainty = 0.95`` and ``SCORER = width``: a number is a width in the metric's units as
-    people read it (0.01 of accuracy), a text such as ``"2%"`` a share of the best strategy's
-    value on each dataset."""
-    if not isinstance(table, dict):
-        raise UserError("[equivalence] must be a table", file=where)
-    known = set(get_scorer_names())
-    margins, certainty = {}, DEFAULT_CERTAINTY
-    for key, value in table.items():
-        if key == "certainty":
-            if isinstance(value, bool) or not isinstance(value, (int, float)) \
-                    or not 0.5 <= value < 1:
-                raise UserError(f"expected a probability of at least 0.5 and below 1, such as "
-                                f"0.95, got {value!r}", file=where, field=key)
-            certainty = float(value)
-            continue
-        if key not in known:
-            raise UserError(f"'{key}' is neither 'certainty' nor a scikit-learn scorer name"
-                            f"{closest(key, known | {'certainty'})}", file=where, field=key)
-        margins[key] = _margin(value, where, key)
-    return Equivalence(margins, certainty)
-
-
-def _margin(value: Any, where: str, key: str) -> Margin:
-    wrong = ("expected the smallest difference that matters: a positive number in the "
-             "metric's units (such as 0.01) or a share of the best value (such as \"2%\"), "
-             f"got {value!r}")
-    if isinstance(value, str):
-        m = re.fullmatch(r"\s*(\d+(?:\.\d+)?)\s*%\s*", value)
-        if not m or not 0 < float(m.group(1)) < 100:
-            raise UserError(wrong, file=where, field=key)
-        return Margin(float(m.group(1)) / 100, relative=True)
-    if isinstance(value, bool) or not isinstance(value, (int, float)) or value <= 0:
-        raise UserError(wrong, file=where, field=key)
-    return Margin(float(value))
 
 
 def _entry_name(entry: Any, path: Path, kind: str, i: int) -> tuple[str, str]:

@@ -188,3 +188,26 @@ def test_changed_file_is_recomputed_and_the_run_says_so(write_suite, tmp_path):
     assert any("'mine' changed" in n for n in notes)
     assert len(load_results(out)) == 3  # the latest plan only
     assert len(load_results(out, plan_only=False)) == 6
+
+
+def test_reporting_and_reading_a_folder_never_load_scikit_learn(write_suite, tmp_path):
+    """`report`, `agree` and `load_results` read results only: a second or more of importing
+    scikit-learn would be spent for nothing (README, Scale)."""
+    path = write_suite(SMALL_SUITE + "\n[equivalence]\naccuracy = 0.02\ncertainty = 0.9\n")
+    out = tmp_path / "out"
+    run_suite(path, out=out, jobs=2, progress=False)
+    code = f"""
+import sys
+import harness
+from harness.report.writer import write_report
+from harness.commands.agree import agree_folders
+write_report(r"{out}", out=r"{tmp_path / 'again'}")
+agree_folders(r"{out}", r"{out}")
+harness.load_results(r"{out}")
+loaded = sorted(m for m in sys.modules if m == "sklearn" or m.startswith("sklearn."))
+print(len(loaded), loaded[:5])
+"""
+    done = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True)
+    assert done.returncode == 0, done.stderr
+    assert done.stdout.startswith("0 "), done.stdout
+    assert (tmp_path / "again" / "report.html").exists()

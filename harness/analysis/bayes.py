@@ -24,6 +24,8 @@ it for every pair of a block.
 
 from __future__ import annotations
 
+from functools import lru_cache
+
 import numpy as np
 from scipy import special as _sp
 
@@ -93,11 +95,16 @@ def joint_means(scores: np.ndarray, ratio: float, size: int = 20000,
     return x.mean(axis=0) + z / w[:, None]
 
 
+@lru_cache(maxsize=16)
 def _dirichlet(n: int, samples: int, seed: int, prior: float) -> np.ndarray:
+    """The posterior weights (read-only: kept for the next call with the same arguments, as
+    `datasets_needed` makes many)."""
     # the legacy generator, so that a seed gives the same weights as the reference package
     weights = np.ones(n + 1)
     weights[0] = prior
-    return np.random.RandomState(seed).dirichlet(weights, samples)
+    w = np.random.RandomState(seed).dirichlet(weights, samples)
+    w.flags.writeable = False
+    return w
 
 
 def signed_rank(diffs, margin, samples: int = SAMPLES, seed: int = 0, prior: float = PRIOR,

@@ -60,7 +60,7 @@ from harness.analysis.per_dataset import (BETTER, EQUIVALENT, PAIR_COLUMNS, UNDE
                                          word)
 from harness.analysis.results import geometric_mean, ok_cells, primary_metrics, strategy_means
 from harness.scorers import Margin, unit_free
-from harness.suite import Equivalence
+from harness.scorers import Equivalence
 
 __all__ = ["Verdict", "verdict", "tied_runs", "complete_block", "ALPHA", "BETTER",
            "EQUIVALENT", "UNDECIDED", "TRIANGLE_POINTS"]
@@ -383,10 +383,11 @@ def _front_rows(scope: str, kind: str, points: pd.DataFrame, rank_scale: bool) -
     if pts.empty:
         return []
     front = stats.pareto_front(pts.assign(score=-pts["score"] if rank_scale else pts["score"]))
-    return [{"scope": scope, "cost_kind": kind, "strategy": name,
-             "score": float(points.loc[name, "score"]), "cost": float(r["cost"]),
-             "on_front": bool(r["on_front"]), "dominated_by": ", ".join(r["dominated_by"])}
-            for name, r in front.iterrows()]
+    score = points["score"]
+    return [{"scope": scope, "cost_kind": kind, "strategy": name, "score": float(score[name]),
+             "cost": float(cost), "on_front": bool(on), "dominated_by": ", ".join(by)}
+            for name, cost, on, by in zip(front.index, front["cost"], front["on_front"],
+                                          front["dominated_by"])]
 
 
 def _pareto(means: pd.DataFrame, v: Verdict) -> pd.DataFrame:

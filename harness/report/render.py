@@ -133,20 +133,20 @@ class Table:
         return cls(name, title, data, pd.DataFrame(rows), group="dataset" if rows else None,
                    group_titles=titles, row_classes=classes, intro=intro)
 
-    def groups(self) -> list[tuple[str | None, pd.DataFrame, list[str] | None]]:
-        """(group value or None, its display rows without the group column, row classes);
-        worked out once per table."""
+    def groups(self) -> list[tuple[str | None, "Cells", list[str] | None]]:
+        """(group value or None, its display rows without the group column as `Cells`, row
+        classes); worked out once per table."""
         if self._groups is not None:
             return self._groups
         classes = self.row_classes or [""] * len(self.display)
         if self.group is None:
-            self._groups = [(None, self.display, classes)]
+            self._groups = [(None, Cells.of(self.display), classes)]
             return self._groups
         rows = self.display.drop(columns=[self.group])
         codes, values = pd.factorize(self.display[self.group], use_na_sentinel=False)
         order = np.argsort(codes, kind="stable")  # groups in order of first appearance
         ends = np.cumsum(np.bincount(codes, minlength=len(values)))
-        self._groups = [(str(g), rows.iloc[at], [classes[i] for i in at])
+        self._groups = [(str(g), Cells.of(rows.iloc[at]), [classes[i] for i in at])
                         for g, at in zip(values, np.split(order, ends[:-1]))]
         return self._groups
 
@@ -155,35 +155,56 @@ def _cell_text(v) -> str:
     return number(v) if not isinstance(v, str) else v
 
 
-def markdown_table(frame: pd.DataFrame) -> str:
+@dataclass(frozen=True)
+class Cells:
+    """A display frame's header and cells as escaped text, column by column, with which
+    cells are numbers (right-aligned) and which columns are numeric (Markdown alignment):
+    worked out once per table, for its Markdown and its HTML."""
+
+    header: list[str]
+    columns: list[list[str]]
+    numeric: list[list[bool]]
+    numeric_columns: list[bool]
+
+    @classmethod
+    def of(cls, frame: pd.DataFrame) -> "Cells":
+        columns, numeric, kinds = [], [], []
+        for c in frame.columns:
+            values = frame[c].tolist()  # Python scalars, whatever the column's dtype
+            columns.append([esc(_cell_text(v)) for v in values])
+            numeric.append([isinstance(v, (int, float, np.integer, np.floating))
+                            and not isinstance(v, (bool, np.bool_)) for v in values])
+            kinds.append(pd.api.types.is_numeric_dtype(frame[c])
+                         and not pd.api.types.is_bool_dtype(frame[c]))
+        return cls([esc(c) for c in frame.columns], columns, numeric, kinds)
+
+    def rows(self) -> int:
+        return len(self.columns[0]) if self.columns else 0
+
+
+def markdown_table(frame: pd.DataFrame | Cells) -> str:
     """A GitHub-style Markdown table; text is escaped (``|`` and HTML), numbers formatted."""
-    if frame.empty:
+    cells = frame if isinstance(frame, Cells) else Cells.of(frame)
+    if not cells.rows():
         return "_(nothing to show)_\n"
-    def cell(v) -> str:
-        return esc(_cell_text(v)).replace("|", "\\|")
-    lines = ["| " + " | ".join(cell(c) for c in frame.columns) + " |",
-             "|" + "|".join("---:" if pd.api.types.is_numeric_dtype(frame[c])
-                            and not pd.api.types.is_bool_dtype(frame[c]) else "---"
-                            for c in frame.columns) + "|"]
-    for row in frame.itertuples(index=False):
-        lines.append("| " + " | ".join(cell(v) for v in row) + " |")
+    def line(texts) -> str:
+        return "| " + " | ".join(t.replace("|", "\\|") for t in texts) + " |"
+    lines = [line(cells.header),
+             "|" + "|".join("---:" if k else "---" for k in cells.numeric_columns) + "|"]
+    lines += [line(row) for row in zip(*cells.columns)]
     return "\n".join(lines) + "\n"
 
 
-def html_table(frame: pd.DataFrame, row_classes: list[str] | None = None) -> str:
-    if frame.empty:
+def html_table(frame: pd.DataFrame | Cells, row_classes: list[str] | None = None) -> str:
+    cells = frame if isinstance(frame, Cells) else Cells.of(frame)
+    if not cells.rows():
         return "<p><em>(nothing to show)</em></p>"
-    head = "".join(f"<th>{esc(c)}</th>" for c in frame.columns)
+    head = "".join(f"<th>{c}</th>" for c in cells.header)
     body = []
-    for i, row in enumerate(frame.itertuples(index=False)):
+    for i, (texts, numbers) in enumerate(zip(zip(*cells.columns), zip(*cells.numeric))):
         cls = f' class="{row_classes[i]}"' if row_classes and row_classes[i] else ""
-        cells = []
-        for v in row:
-            numeric = isinstance(v, (int, float, np.integer, np.floating)) \
-                and not isinstance(v, (bool, np.bool_))
-            cells.append(f'<td class="num">{esc(_cell_text(v))}</td>' if numeric
-                         else f"<td>{esc(_cell_text(v))}</td>")
-        body.append(f"<tr{cls}>" + "".join(cells) + "</tr>")
+        body.append(f"<tr{cls}>" + "".join(f'<td class="num">{t}</td>' if n else f"<td>{t}</td>"
+                                           for t, n in zip(texts, numbers)) + "</tr>")
     return f"<table><thead><tr>{head}</tr></thead><tbody>{''.join(body)}</tbody></table>"
 
 

@@ -29,7 +29,7 @@ from harness.report.outputs import STATE_NAME, SUMMARY_NAME, Outputs, state_text
 from harness.report.page import REPORT_NAME, PageContent, render
 from harness.report.render import Table, md_text, to_markdown
 from harness.store import Store
-from harness.suite import Equivalence
+from harness.scorers import Equivalence
 
 DPI = 110
 # Figures with one panel per dataset show at most this many datasets (the first by name):
