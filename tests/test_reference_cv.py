@@ -98,16 +98,23 @@ def test_final_point_of_size_curve_is_the_fold_score(results):
 def test_adaboost_regressor_curve_equals_scikit_learns_staged_predict():
     """The ensemble-size curve of AdaBoost.R2 takes its weighted medians from one prediction
     per member; scikit-learn's staged_predict (the reference) predicts every member again at
-    every stage. Both must give the same predictions, to the bit."""
+    every stage. Both must give the same predictions, to the bit, on a data frame (what the
+    in-fold preprocessing hands over) without a warning about feature names."""
+    import warnings
+
     import numpy as np
+    import pandas as pd
     from sklearn.datasets import make_friedman1
     from sklearn.ensemble import AdaBoostRegressor
 
     from harness.execution.run_cell import weighted_median_at
 
     X, y = make_friedman1(n_samples=300, noise=1.0, random_state=2)
+    X = pd.DataFrame(X, columns=[f"x{i}" for i in range(X.shape[1])])
     model = AdaBoostRegressor(n_estimators=40, random_state=0).fit(X[:200], y[:200])
     staged = list(model.staged_predict(X[200:]))
-    got = weighted_median_at(model, X[200:], [1, 2, 9, 23, 40])
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")
+        got = weighted_median_at(model, X[200:], [1, 2, 9, 23, 40])
     for n, values in got.items():
         assert np.array_equal(values, staged[n - 1]), n

@@ -102,8 +102,10 @@ def weighted_median_at(ens, Xt, sizes: list[int]) -> dict[int, np.ndarray]:
     of ``sizes`` stages, from one prediction per member. scikit-learn's ``staged_predict``
     predicts every member again at every stage (quadratic in the stages); the medians here
     are the same computation as its ``_get_median_predict``, checked against
-    ``staged_predict`` in the tests."""
-    members = np.array([est.predict(Xt) for est in ens.estimators_[:max(sizes)]]).T
+    ``staged_predict`` in the tests. The members were fitted on the validated array, without
+    column names, so a data frame is passed to them as its array."""
+    Xa = Xt.to_numpy() if hasattr(Xt, "to_numpy") else Xt
+    members = np.array([est.predict(Xa) for est in ens.estimators_[:max(sizes)]]).T
     rows = np.arange(members.shape[0])
     out = {}
     for n in sizes:
