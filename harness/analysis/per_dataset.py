@@ -71,7 +71,7 @@ def judge(ok: pd.DataFrame, metric: str, margin: Margin, certainty: float,
 
 def _dataset(ds, part, need, metric, margin, certainty, alpha):
     m = part.pivot(index=["repeat", "fold"], columns="strategy", values=metric)
-    names = list(dict.fromkeys(part["strategy"]))
+    names = list(part["strategy"].unique())
     m = m[names]
     x = m.to_numpy(float)
     ratio = float(part["n_test"].mean() / part["n_train"].mean())

@@ -291,13 +291,14 @@ def verdict(frame: pd.DataFrame, metrics: dict[str, list[str]] | None = None,
     if means.empty:
         return v
     scores = means.pivot(index="dataset", columns="strategy", values="score")
-    scores = scores.reindex(index=list(dict.fromkeys(means["dataset"])),
-                            columns=list(dict.fromkeys(means["strategy"])))
+    scores = scores.reindex(index=list(means["dataset"].unique()),
+                            columns=list(means["strategy"].unique()))
     block, dropped = complete_block(scores)
     v.matrix = block
     for kind in ("strategy", "dataset"):
-        for name in dict.fromkeys(frame[kind]):
-            if name not in set(means[kind]):
+        judged = set(means[kind])
+        for name in frame[kind].unique():
+            if name not in judged:
                 v.left_out.append(f"{kind} '{name}' has no successful cell"
                                   + (" on any dataset" if kind == "strategy" else ""))
     for kind, name, missing in dropped:
@@ -350,7 +351,7 @@ def _per_dataset(frame, ok, primary, means, margins, certainty, alpha):
              for (d, s), c in planned.items() if (d, s) not in have and d in primary]
     if extra:
         iv = pd.concat([iv, pd.DataFrame(extra)], ignore_index=True)
-        order = {d: i for i, d in enumerate(dict.fromkeys(iv["dataset"]))}
+        order = {d: i for i, d in enumerate(iv["dataset"].unique())}
         iv = iv.sort_values("dataset", key=lambda s: s.map(order), kind="stable")
     return iv[icols].reset_index(drop=True), pr
 
@@ -435,8 +436,10 @@ def _across(v: Verdict, block: pd.DataFrame, pairs: pd.DataFrame) -> None:
         w_diffs, v.scale = raw, "raw"
     else:  # each pair on each dataset in units of its own fold-to-fold differences
         sd = oriented.set_index(["a", "b", "dataset"])["sd"]
-        pair_sd = np.array([[sd.get((a, b, d), np.nan) for d in block.index]
-                            for a, b in zip(names_a, names_b)], dtype=float)
+        sd = sd[~sd.index.duplicated()]
+        wanted = pd.MultiIndex.from_arrays([np.repeat(names_a, n), np.repeat(names_b, n),
+                                            np.tile(block.index.to_numpy(), len(names_a))])
+        pair_sd = sd.reindex(wanted).to_numpy(float).reshape(len(names_a), n)
         pair_sd = np.where(np.isfinite(pair_sd) & (pair_sd > 0), pair_sd, width[None, :])
         w_diffs, v.scale = raw / pair_sd, "pair noise"
     w = stats.wilcoxon_pairs(w_diffs, names_a, names_b, v.alpha)

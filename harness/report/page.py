@@ -220,7 +220,7 @@ def _datasets_section(c: PageContent) -> str:
     if not c.datasets.empty:
         parts.append(html_table(c.datasets))
     counts = v.pairs.groupby("dataset", sort=False).size()
-    for ds in dict.fromkeys(v.intervals["dataset"]):
+    for ds in v.intervals["dataset"].unique():
         parts.append(f"<h3>{esc(iv.group_titles.get(ds, ds))}</h3>" + to_html(iv, only=ds)
                      + f"<details><summary>All {int(counts.get(ds, 0))} pairs on {esc(ds)} "
                      "(corrected t-test)</summary>" + to_html(pairs, only=ds) + "</details>")

@@ -95,7 +95,7 @@ def dataset_panels(frame: pd.DataFrame, colors_from: pd.DataFrame | None = None,
                    extra: float = 0.9) -> tuple[Figure, list, dict]:
     """A figure with one panel per dataset of ``frame``: (figure, [(axes, dataset, its
     rows)], strategy colours over the strategies of ``colors_from``, default ``frame``)."""
-    datasets = list(dict.fromkeys(frame["dataset"]))
+    datasets = list(frame["dataset"].unique())
     fig, axes = grid(len(datasets), max_cols, size, extra)
     panels = [(ax, ds, frame[frame["dataset"] == ds]) for ax, ds in zip(axes, datasets)]
     c = frame if colors_from is None else colors_from

@@ -330,7 +330,7 @@ def pareto(v: Verdict) -> Table:
     """Per scope (all datasets first, then each dataset): score, both costs and what
     dominates each strategy."""
     rows = []
-    scopes = sorted(dict.fromkeys(v.pareto["scope"]), key=lambda s: s != "all datasets")
+    scopes = sorted(v.pareto["scope"].unique(), key=lambda s: s != "all datasets")
     for scope in scopes:
         part = v.pareto[v.pareto["scope"] == scope]
         fit, pred = (part[part["cost_kind"] == k].set_index("strategy") for k in COST_LABELS)

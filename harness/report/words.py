@@ -103,7 +103,7 @@ def bottom_line(v: Verdict) -> list[str]:
     if v.ranks is None or v.ranks.empty:
         return ["No strategy has a successful cell, so there is nothing to compare."]
     if not v.tested:
-        return [_dataset_line(v, ds) for ds in dict.fromkeys(v.intervals["dataset"])
+        return [_dataset_line(v, ds) for ds in v.intervals["dataset"].unique()
                 if v.intervals[v.intervals["dataset"] == ds]["mean"].notna().any()]
     n, k = v.matrix.shape
     leaders = v.leaders

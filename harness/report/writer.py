@@ -108,7 +108,8 @@ def _dataset_table(datasets: pd.DataFrame, frame: pd.DataFrame,
                    v: Verdict | None) -> pd.DataFrame:
     if datasets.empty or frame.empty or "fingerprint" not in datasets:
         return pd.DataFrame()
-    fps = set(frame["fingerprint"].str[:12]) | set(frame["fingerprint"])
+    fps = set(frame["fingerprint"].dropna().unique())
+    fps |= {f[:12] for f in fps}
     d = datasets[datasets["fingerprint"].isin(fps)].drop_duplicates("dataset")
     if d.empty:
         return pd.DataFrame()
@@ -198,7 +199,7 @@ def write_report(folder: str | Path, recommendation: list[str] | None = None,
         summaries = store.dataset_summaries()
         points_frame = store.speedup_frame()
         runs = _computing_runs(store, frame, points_frame)
-        panels = list(dict.fromkeys(frame["dataset"]))[:MAX_PANELS] if not frame.empty else []
+        panels = list(frame["dataset"].unique())[:MAX_PANELS] if not frame.empty else []
         curves = store.curve_points(panels) if panels else pd.DataFrame()
         tuned = not frame.empty and bool(frame["tuned"].any())
         trials = store.trials_frame() if tuned else pd.DataFrame()
