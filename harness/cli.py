@@ -15,6 +15,7 @@ import signal
 import sys
 import threading
 
+from harness import interrupts
 from harness.errors import UserError
 from harness.versions import WOODLOT_VERSION
 
@@ -28,7 +29,13 @@ class Terminated(KeyboardInterrupt):
 
 def _on_sigterm(signum, frame) -> None:
     signal.signal(signal.SIGTERM, signal.SIG_IGN)  # once: let the clean-up finish
+    interrupts.remember(Terminated)
     raise Terminated()
+
+
+def _on_sigint(signum, frame) -> None:
+    interrupts.remember(KeyboardInterrupt)
+    raise KeyboardInterrupt()
 
 
 def _command_line() -> str:
@@ -266,9 +273,13 @@ def parser() -> argparse.ArgumentParser:
 def main(argv: list[str] | None = None) -> int:
     args = parser().parse_args(argv)
     main_thread = threading.current_thread() is threading.main_thread()
+    interrupts.forget()
     previous = signal.signal(signal.SIGTERM, _on_sigterm) if main_thread else None
+    previous_int = signal.signal(signal.SIGINT, _on_sigint) if main_thread else None
     try:
-        return args.fn(args)
+        status = args.fn(args)
+        interrupts.raise_pending()  # a signal whose exception a finalizer swallowed
+        return status
     except UserError as exc:
         print(f"woodlot: {exc}", file=sys.stderr)
         return 2
@@ -284,8 +295,11 @@ def main(argv: list[str] | None = None) -> int:
         os.dup2(os.open(os.devnull, os.O_WRONLY), sys.stdout.fileno())
         return 141  # 128 + SIGPIPE, as a shell reports it
     finally:
+        interrupts.forget()
         if main_thread:
             signal.signal(signal.SIGTERM, signal.SIG_DFL if previous is None else previous)
+            signal.signal(signal.SIGINT, signal.default_int_handler if previous_int is None
+                          else previous_int)
 
 
 if __name__ == "__main__":

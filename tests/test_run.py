@@ -117,7 +117,7 @@ def test_interrupted_run_resumes_keeping_finished_cells(write_suite, tmp_path, h
     proc.send_signal(how)
     _, err = proc.communicate(timeout=30)
     if how == signal.SIGINT:
-        assert proc.returncode == 130 and "resume" in err
+        assert proc.returncode == 130 and "resume" in err, (proc.returncode, err[-2000:])
         assert len(err.strip().splitlines()) == 1 and "Traceback" not in err, err
     kept = _stored(db)
     assert 4 <= kept < 2 * 3 * 12
@@ -125,6 +125,32 @@ def test_interrupted_run_resumes_keeping_finished_cells(write_suite, tmp_path, h
     assert resumed.reused == kept and resumed.ran == resumed.planned - kept
     frame = load_results(out)
     assert len(frame) == resumed.planned and frame.key.is_unique and (frame.status == "ok").all()
+
+
+def test_an_interrupt_swallowed_by_a_finalizer_still_stops_the_run(write_suite, tmp_path,
+                                                                   monkeypatch, capsys):
+    """A signal's exception raised while a finalizer (``__del__``) runs is printed and
+    dropped by Python; the handler also remembers the signal, and the run loop stops at the
+    next cell. Simulated: the third stored cell remembers a Ctrl-C whose exception was lost."""
+    from harness import interrupts
+    from harness.store import Store
+
+    path = write_suite(SMALL_SUITE)
+    out = tmp_path / "out"
+    put, calls = Store.put, []
+
+    def put_and_lose_an_interrupt(self, row, run):
+        put(self, row, run)
+        calls.append(row["key"])
+        if len(calls) == 3:
+            interrupts.remember(KeyboardInterrupt)
+
+    monkeypatch.setattr(Store, "put", put_and_lose_an_interrupt)
+    assert main(["run", str(path), "--out", str(out), "--jobs", "1", "--quiet"]) == 130
+    assert "interrupted" in capsys.readouterr().err
+    with Store(out, read_only=True) as store:
+        assert len(store.finished_keys()) == 3
+        assert store.last_run()["state"] == "interrupted"
 
 
 def test_report_regenerates_outputs_from_the_store_alone(write_suite, tmp_path, capsys):

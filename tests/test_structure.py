@@ -15,8 +15,8 @@ PACKAGE = Path(__file__).resolve().parents[1] / "harness"
 
 # Layers from the bottom up; a module may import only from its own layer or those below.
 LAYERS = [
-    ("harness.errors", "harness.files", "harness.names", "harness.versions", "harness.locks",
-     "harness.provenance"),
+    ("harness.errors", "harness.interrupts", "harness.files", "harness.names",
+     "harness.versions", "harness.locks", "harness.provenance"),
     ("harness.datasets", "harness.spaces", "harness.strategies", "harness.suite",
      "harness.datacheck", "harness.scorers"),
     ("harness.splits", "harness.preprocess", "harness.work_units", "harness.row_evidence",

@@ -8,6 +8,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Callable
 
+from harness import interrupts
 from harness.commands.lifecycle import Echo, session, stderr_echo, refresh_outputs
 from harness.commands.progress import Progress
 from harness.commands.speedup import SpeedupResult, measure_points
@@ -124,6 +125,7 @@ def run_suite(path: str | Path, *, out: str | Path | None = None, jobs: int | No
             counted = 0
             for row in executor.run(work, plan.by_fingerprint, timeout, memory):
                 work.accept(row)
+                interrupts.raise_pending()
                 for fine in work.statuses[counted:]:
                     bar.step(fine)
                 counted = work.finished_cells

@@ -20,7 +20,7 @@ from typing import Any, Iterator
 
 import psutil
 
-from harness import provenance
+from harness import interrupts, provenance
 from harness.commands.lifecycle import Echo, Session, session, stderr_echo, refresh_outputs
 from harness.commands.progress import Progress
 from harness.execution.memory import cell_limit
@@ -138,6 +138,7 @@ def _measure(s: Session, todo, limits: tuple[float | None, int | None], result: 
         for point in todo:
             rows = run_point(point, s.plan.datasets[point.dataset], *limits)
             s.store.put_speedup(rows, s.run)
+            interrupts.raise_pending()
             result.ran += 1
             failed = rows[0]["status"] != OK
             result.failed += failed
