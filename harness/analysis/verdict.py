@@ -436,7 +436,6 @@ def _across(v: Verdict, block: pd.DataFrame, pairs: pd.DataFrame) -> None:
         w_diffs, v.scale = raw, "raw"
     else:  # each pair on each dataset in units of its own fold-to-fold differences
         sd = oriented.set_index(["a", "b", "dataset"])["sd"]
-        sd = sd[~sd.index.duplicated()]
         wanted = pd.MultiIndex.from_arrays([np.repeat(names_a, n), np.repeat(names_b, n),
                                             np.tile(block.index.to_numpy(), len(names_a))])
         pair_sd = sd.reindex(wanted).to_numpy(float).reshape(len(names_a), n)
