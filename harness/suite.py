@@ -436,6 +436,10 @@ def _datasets(entries: Any, path: Path, expand: bool) -> list[DatasetSpec]:
                             field="name")
         seen.add(name)
         source = entry.get("from")
+        if source is None:
+            raise UserError(f"missing: say where the data come from, one of "
+                            f"{', '.join(SOURCES)} (from = \"file\" for a CSV or Parquet file)",
+                            file=where, field="from")
         if source not in SOURCES:
             raise UserError(f"unknown source {source!r}{closest(str(source), SOURCES)}; use one "
                             f"of {', '.join(SOURCES)}", file=where, field="from")

@@ -278,6 +278,8 @@ SUITE_CASES = {
                               'load = "load_iris"', ["dataset 'wine' (entry 2)", "field 'name'"]),
     "unknown source": ("datasets", '[[dataset]]\nname = "x"\nfrom = "web"',
                        ["dataset 'x'", "field 'from'"]),
+    "source missing": ("datasets", '[[dataset]]\nname = "x"\nsource = "file"\npath = "a.csv"',
+                       ["dataset 'x'", "field 'from'", "missing"]),
     "unknown generator": ("datasets", '[[dataset]]\nname = "x"\nfrom = "generator"\nmake = '
                           '"make_cirles"', ["dataset 'x'", "field 'make'"]),
     "speedup worker count 0": ("speedup", "[speedup]\nworkers = [0, 2]",
