@@ -138,24 +138,67 @@ def _json_list(texts: Iterable[Any], missing: str) -> list:
 def _read(cursor: sqlite3.Cursor, parse: dict[str, str] | None = None,
           keep: set | None = None, convert=None) -> tuple[pd.DataFrame, dict[str, list]]:
     """The rows of a query as a frame, read in chunks so that they never all exist at once
-    as Python objects. The JSON columns of ``parse`` (column → the JSON a NULL stands for)
-    come back parsed beside the frame, as one list per chunk (each passed through
-    ``convert`` first, when given); with ``keep``, only the rows whose first column is in
-    it."""
+    as Python objects, each column made an array chunk by chunk (`_Column`). The JSON
+    columns of ``parse`` (column → the JSON a NULL stands for) come back parsed beside the
+    frame, as one list per chunk (each passed through ``convert`` first, when given); with
+    ``keep``, only the rows whose first column is in it."""
     names = [d[0] for d in cursor.description]
     parse = parse or {}
-    parts, parsed = [], {c: [] for c in parse}
+    columns = {n: _Column() for n in names if n not in parse}
+    parsed = {c: [] for c in parse}
     while rows := cursor.fetchmany(_CHUNK):
         if keep is not None:
             rows = [r for r in rows if r[0] in keep]
-        values = dict(zip(names, zip(*rows))) if rows else {n: () for n in names}
-        for c, missing in parse.items():
-            found = _json_list(values.pop(c), missing)
-            parsed[c].append(convert(found) if convert else found)
-        parts.append(pd.DataFrame(values))
-    frame = (pd.concat(parts, ignore_index=True) if parts else
-             pd.DataFrame({n: () for n in names if n not in parse}))
-    return frame, parsed
+        for name, values in zip(names, zip(*rows)):
+            if name in parse:
+                found = _json_list(values, parse[name])
+                parsed[name].append(convert(found) if convert else found)
+            else:
+                columns[name].add(values)
+    # object arrays passed as they are: pandas 3 would make text columns Arrow-backed
+    return pd.DataFrame({n: pd.Series(a, dtype=a.dtype, copy=False)
+                         for n, a in ((n, c.array()) for n, c in columns.items())}), parsed
+
+
+class _Column:
+    """One column of a query, chunk by chunk, as NumPy arrays: integers as ``int64``,
+    numbers with NULLs as ``float64`` (NULL → NaN), anything else (text) as ``object`` with
+    one Python string per distinct value (NULL → NaN, as pandas has it for text; a column
+    of nothing but NULLs holds None).
+
+    Plain strings rather than pandas 3's Arrow-backed ``str``: the analysis selects rows
+    and splits groups of a big frame thousands of times, and each such step costs more on
+    Arrow strings (the report of 100,000 cells: 15.1 s with them, 12.3 s without; the
+    outputs are the same). One object per distinct value: the 100,000 cells of a big store
+    name a few dozen datasets."""
+
+    def __init__(self) -> None:
+        self.parts: list[np.ndarray | int] = []  # an int: that many NULLs
+
+    def add(self, values: tuple) -> None:
+        kinds = set(map(type, values))
+        null = type(None) in kinds
+        kinds.discard(type(None))
+        if not kinds:
+            self.parts.append(len(values))
+            return
+        if kinds <= {int, float}:
+            try:
+                self.parts.append(np.array(values, dtype=np.int64 if kinds == {int} and not null
+                                           else float))
+                return
+            except OverflowError:  # an integer beyond 64 bits: kept as it is
+                pass
+        codes, distinct = pd.factorize(np.array(values, dtype=object), use_na_sentinel=False)
+        self.parts.append(np.asarray(distinct, dtype=object).take(codes))
+
+    def array(self) -> np.ndarray:
+        arrays = [p for p in self.parts if not isinstance(p, int)]
+        if not arrays:
+            return np.full(sum(self.parts), None, dtype=object)
+        kind = object if any(a.dtype == object for a in arrays) else float
+        return np.concatenate([np.full(p, np.nan, dtype=kind) if isinstance(p, int) else p
+                               for p in self.parts])
 
 
 def _score_frame(chunks: list[pd.DataFrame], n: int) -> pd.DataFrame:
@@ -632,15 +675,19 @@ class Store:
                                 f"({', '.join('?' * len(cols))})", [v.get(c) for c in cols])
 
     @reported
-    def cells_frame(self, *, plan_only: bool = True, curves: bool = True) -> pd.DataFrame:
+    def cells_frame(self, *, plan_only: bool = True, curves: bool = True,
+                    datasets: Iterable[str] | None = None) -> pd.DataFrame:
         """One row per cell; one column per metric named after its scorer. ``curves=False``
         leaves out the ensemble-size curves, most of a big frame's memory (`curve_points`
-        reads them for chosen datasets)."""
+        reads them for chosen datasets); ``datasets``: only the cells of these."""
         table = [c for (c,) in self.db.execute("SELECT name FROM pragma_table_info('cells')")
                  if c != "scores" and (curves or c != "curve")]
         columns = ["key", *(c for c in table if c != "key"), "scores"]
         json_columns = {"scores": "{}", **({"curve": "null"} if curves else {})}
-        frame, parsed = _read(self.db.execute(f"SELECT {', '.join(columns)} FROM cells"),
+        names = None if datasets is None else list(datasets)
+        where = "" if names is None else f" WHERE dataset IN ({', '.join('?' * len(names))})"
+        frame, parsed = _read(self.db.execute(f"SELECT {', '.join(columns)} FROM cells{where}",
+                                              names or ()),
                               json_columns, (self._plan_keys() or None) if plan_only else None)
         by = ["dataset", "strategy", "repeat", "fold"]
         order = frame[by].sort_values(by, kind="stable").index.to_numpy()
@@ -668,6 +715,16 @@ class Store:
 
     def _plan_keys(self) -> set[str]:
         return {k for (k,) in self.db.execute("SELECT key FROM plan")}
+
+    @reported
+    def plan_counts(self) -> list[tuple[str, int, int]]:
+        """``(dataset, run, cells)`` for the latest plan's stored cells, ordered by dataset
+        name (the order of `cells_frame`) and run: which datasets they are on and which runs
+        computed them, without reading them."""
+        # "+key": one pass over the cells, each looked up in the plan, rather than a search of
+        # the cells by key for each planned key (0.15 s against 0.25 s for 100,000)
+        return self.db.execute("SELECT dataset, run, COUNT(*) FROM cells" + self._in_plan("+key")
+                               + " GROUP BY dataset, run ORDER BY dataset, run").fetchall()
 
     @reported
     def curve_points(self, datasets: Iterable[str]) -> pd.DataFrame:
