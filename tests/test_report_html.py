@@ -178,7 +178,8 @@ def test_store_without_accuracy_cells_still_gets_a_report(tmp_path):
 
 def test_per_dataset_figures_stop_at_a_dozen_datasets_and_say_so(write_suite, tmp_path):
     from harness import run_suite
-    from harness.report.writer import DPI, MAX_PANELS
+    from harness.report.drawing import MAX_PANELS
+    from harness.report.images import DPI
 
     datasets = "".join(f"""
 [[dataset]]

@@ -20,6 +20,14 @@ def in_notebook() -> bool:
     return kernel is not None and "IPKernelApp" in getattr(kernel, "config", {})
 
 
+class _Bar(tqdm):
+    """tqdm's bar without its monitor thread, which every bar starts (a disabled one too) and
+    leaves running: a process with a second thread cannot safely fork, and the report forks
+    to draw its figures (`harness.report.drawing`)."""
+
+    monitor_interval = 0
+
+
 class Progress:
     """A progress bar over ``total`` units of work (``label`` names them)."""
 
@@ -27,10 +35,10 @@ class Progress:
         if enabled is None:
             enabled = sys.stderr.isatty() or in_notebook()
         self.total, self.done, self.failed = total, 0, 0
-        self.bar = tqdm(total=total, unit=f" {label}", disable=not enabled or total == 0,
-                        dynamic_ncols=True, leave=True, file=sys.stderr,
-                        bar_format="{l_bar}{bar}| {n_fmt}/{total_fmt}{unit} "
-                                   "[{elapsed} elapsed, ~{remaining} left{postfix}]")
+        self.bar = _Bar(total=total, unit=f" {label}", disable=not enabled or total == 0,
+                         dynamic_ncols=True, leave=True, file=sys.stderr,
+                         bar_format="{l_bar}{bar}| {n_fmt}/{total_fmt}{unit} "
+                                    "[{elapsed} elapsed, ~{remaining} left{postfix}]")
 
     def step(self, ok: bool = True) -> None:
         self.done += 1

@@ -8,40 +8,27 @@ page (the results are partial)."""
 
 from __future__ import annotations
 
-import io
 import json
 import time
 from pathlib import Path
-from typing import Iterator
 
 import pandas as pd
 from matplotlib.figure import Figure
+from threadpoolctl import threadpool_limits
 
 from harness.analysis import tuning
-from harness.analysis.results import strategy_means
 from harness.analysis.speedup import summarize
 from harness.analysis.verdict import Verdict, verdict
 from harness.files import writable_folder, write_bytes, write_text
 from harness.folder_lock import running_elsewhere
 from harness.report import plots, speedup_plots, tables, tuning_tables, verdict_plots, words
-from harness.report.cd_diagram import cd_figure
+from harness.report.drawing import MAX_PANELS, Drawing
+from harness.report.images import png
 from harness.report.outputs import STATE_NAME, SUMMARY_NAME, Outputs, state_text
 from harness.report.page import REPORT_NAME, PageContent, render
 from harness.report.render import Table, md_text, to_markdown
 from harness.store import Store
 from harness.scorers import Equivalence
-
-DPI = 110
-# Figures with one panel per dataset show at most this many datasets (the first by name):
-# past that they take longer to draw than everything else and are too tall to read.
-MAX_PANELS = 12
-
-
-def png(fig: Figure, dpi: int = DPI) -> bytes:
-    buf = io.BytesIO()
-    fig.savefig(buf, format="png", dpi=dpi)
-    return buf.getvalue()
-
 
 def executor_text(prov: dict) -> str:
     """Where a run's cells ran, in words, from its provenance."""
@@ -92,13 +79,17 @@ def _runs_table(runs: list[dict]) -> pd.DataFrame:
                                        "after"])
 
 
-def _computing_runs(store: Store, frame: pd.DataFrame, points: pd.DataFrame) -> list[dict]:
-    """The runs that computed the cells and speedup points shown, oldest first, each with
-    how many it computed; a rerun that fitted nothing is not among them."""
-    cells = frame["run"].value_counts() if not frame.empty else pd.Series(dtype=int)
+def _computing_runs(store: Store, counts: list[tuple[str, int, int]],
+                    points: pd.DataFrame) -> list[dict]:
+    """The runs that computed the cells (``counts``: `Store.plan_counts`) and speedup points
+    shown, oldest first, each with how many it computed; a rerun that fitted nothing is not
+    among them."""
+    cells: dict[int, int] = {}
+    for _, run, n in counts:
+        cells[run] = cells.get(run, 0) + n
     done = (points.drop_duplicates("key")["run"].value_counts() if not points.empty
             else pd.Series(dtype=int))
-    runs = store.runs(set(cells.index) | set(done.index))
+    runs = store.runs(set(cells) | set(done.index))
     for r in runs:
         r["cells"], r["points"] = int(cells.get(r["run"], 0)), int(done.get(r["run"], 0))
     return runs
@@ -121,22 +112,6 @@ def _dataset_table(datasets: pd.DataFrame, frame: pd.DataFrame,
     if v is not None:
         d["judged on"] = d["dataset"].map(v.primary)
     return d.reset_index(drop=True)
-
-
-def _verdict_figures(v: Verdict) -> Iterator[tuple[str, Figure | None]]:
-    """The verdict's figures, each made only when the one before has been taken."""
-    if not v.tested:
-        return
-    n = len(v.matrix)
-    yield "critical_difference", cd_figure(v.ranks, v.cd, v.nemenyi_groups,
-                                           f"Nemenyi critical difference, α = {v.alpha:g}, "
-                                           f"{n} datasets")
-    yield "wilcoxon_holm_groups", cd_figure(v.ranks, None, v.wilcoxon_groups,
-                                            f"Not told apart by Wilcoxon–Holm, "
-                                            f"α = {v.alpha:g}, {n} datasets")
-    yield "rank_vs_fit_time", plots.rank_vs_fit_time(v.ranks, v.costs, n)
-    yield "probability_bars", verdict_plots.probability_bars(v)
-    yield "posterior_triangles", verdict_plots.triangles(v)
 
 
 def _gone(run: dict | None) -> dict | None:
@@ -193,14 +168,28 @@ def write_report(folder: str | Path, recommendation: list[str] | None = None,
     state the outputs show."""
     folder = Path(folder)
     with Store(folder, read_only=True) as store:
+        counts = store.plan_counts()
+        points_frame = store.speedup_frame()
+        runs = _computing_runs(store, counts, points_frame)
+        last = store.last_run()
+        metrics = ((runs[-1] if runs else last) or {}).get("provenance", {}).get("metrics")
+        panels = list(dict.fromkeys(d for d, _, _ in counts))[:MAX_PANELS]
+    # the figures are drawn from here on in a second process (`harness.report.drawing`);
+    # one BLAS thread here: the report's matrices are small, and a BLAS thread waiting for
+    # the core the figures take made the verdict 1.5 s slower on 100,000 cells
+    with Drawing(folder, panels, metrics) as drawing, threadpool_limits(1, user_api="blas"):
+        return _write(folder, drawing, points_frame, runs, last,
+                      recommendation or [], recommendation_sections or [], out)
+
+
+def _write(folder: Path, drawing: Drawing, points_frame: pd.DataFrame, runs: list[dict],
+           last: dict | None, recommendation: list[str],
+           recommendation_sections: list[tuple[str, list[str]]],
+           out: str | Path | None) -> Outputs:
+    with Store(folder, read_only=True) as store:
         state = store.state()
         frame = store.cells_frame(curves=False)
-        last = store.last_run()
         summaries = store.dataset_summaries()
-        points_frame = store.speedup_frame()
-        runs = _computing_runs(store, frame, points_frame)
-        panels = list(frame["dataset"].unique())[:MAX_PANELS] if not frame.empty else []
-        curves = store.curve_points(panels) if panels else pd.DataFrame()
         tuned = not frame.empty and bool(frame["tuned"].any())
         trials = store.trials_frame() if tuned else pd.DataFrame()
         refits = store.refits_frame() if tuned else pd.DataFrame()
@@ -222,8 +211,7 @@ def write_report(folder: str | Path, recommendation: list[str] | None = None,
     def draw(name: str, fig: Figure | None) -> None:
         """Keep the figure as PNG bytes and let it go (big figures take much memory)."""
         if fig is not None:
-            images[name] = png(fig, dpi=150 if name in ("critical_difference",
-                                                        "wilcoxon_holm_groups") else DPI)
+            images[name] = png(fig)
 
     found: list[Table] = []
     n_cells, n_datasets = len(frame), frame["dataset"].nunique() if not frame.empty else 0
@@ -232,6 +220,7 @@ def write_report(folder: str | Path, recommendation: list[str] | None = None,
         v = verdict(frame, provenance.get("metrics"),
                     Equivalence.from_settings(provenance.get("equivalence")))
         out.verdict = v
+        drawing.verdict(v)  # its figures are drawn beside the tables
         found += [tables.scores(frame), tables.costs(frame)]
         fails = tables.failures(frame)
         if not fails.data.empty:
@@ -248,14 +237,8 @@ def write_report(folder: str | Path, recommendation: list[str] | None = None,
             f"- {md_text(s)}\n" for s in words.details(v))
             + ("\n## What tuning buys\n\n" + "".join(f"- {md_text(s)}\n" for s in out.tuning)
                if out.tuning else "")))
-        shown = frame[frame["dataset"].isin(panels)]
         dataset_table = _dataset_table(summaries, frame, v)
         del frame  # the biggest frame is not needed past here
-        for name, fig in _verdict_figures(v):
-            draw(name, fig)
-        draw("score_vs_fit_time", plots.score_vs_fit_time(strategy_means(shown, v.primary)))
-        draw("ensemble_size", plots.size_curves(curves, v.primary, shown))
-        del shown, curves
     else:
         dataset_table = pd.DataFrame()
     if not points_frame.empty:
@@ -273,6 +256,7 @@ def write_report(folder: str | Path, recommendation: list[str] | None = None,
         out.files.append(write_text(target / "tables" / f"{t.name}.csv",
                                     t.data.to_csv(index=False)))
         out.files.append(write_text(target / "tables" / f"{t.name}.md", to_markdown(t)))
+    images.update(drawing.result())
     for name, data in images.items():
         out.files.append(write_bytes(target / "plots" / f"{name}.png", data))
     content = PageContent(
@@ -283,8 +267,8 @@ def write_report(folder: str | Path, recommendation: list[str] | None = None,
         failures=out.tables["failures"].data if "failures" in out.tables else pd.DataFrame(),
         provenance=_provenance_rows(run, n_cells, folder), runs=_runs_table(runs),
         suite_text=(run or {}).get("suite_text") or "", has_speedup=not points_frame.empty,
-        recommendation=recommendation or [],
-        recommendation_sections=recommendation_sections or [], status=status,
+        recommendation=recommendation, recommendation_sections=recommendation_sections,
+        status=status,
         panels_note=_panels_note(n_datasets), pairs_note=_pairs_note(out.verdict),
         tuning=out.tuning)
     out.files.append(write_text(target / REPORT_NAME, render(content)))

@@ -1,0 +1,218 @@
+"""The report's figures, drawn in a process of their own while the report's own process
+computes the verdict and the tables.
+
+The figures with one panel per dataset (score against fit time; score as the ensemble grows)
+need only the cells of the datasets shown, read from the store, and start at once; the
+verdict's figures (critical differences, rank against fit time, the posterior pictures)
+follow when the verdict is handed over. Drawing is most of a big store's report that does not
+need the verdict (see the README's figures on a store of 100,000 cells).
+
+On Linux the process is forked (it starts at once, with the libraries already imported) when
+no other thread runs; elsewhere the same figures are drawn in the report's own process, when
+they are asked for. Either way the bytes are the same.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import multiprocessing as mp
+import pickle
+import signal
+import sys
+import threading
+from pathlib import Path
+from typing import Callable, Iterator
+
+from matplotlib.figure import Figure
+
+from harness.analysis.results import primary_metrics, strategy_means
+from harness.analysis.verdict import Verdict
+from harness.execution.processes import die_with_parent
+from harness.report import plots, verdict_plots
+from harness.report.cd_diagram import cd_figure
+from harness.report.images import DPI, png
+from harness.store import Store
+
+# Figures with one panel per dataset show at most this many datasets (the first by name):
+# past that they take longer to draw than everything else and are too tall to read.
+MAX_PANELS = 12
+# the critical difference diagrams are small and full of text: drawn finer
+_FINE = {"critical_difference": 150, "wilcoxon_holm_groups": 150}
+
+Maker = Callable[[], Figure | None]
+
+
+def dataset_images(folder: Path, datasets: list[str], metrics: dict[str, list[str]] | None
+                   ) -> dict[str, bytes]:
+    """Figure name → PNG bytes of the per-dataset figures, for the latest plan's cells of
+    ``datasets`` (``metrics``: the suite's metrics per task, as the verdict takes them); a
+    figure with nothing to show is left out."""
+    if not datasets:
+        return {}
+    with Store(folder, read_only=True) as store:
+        shown = store.cells_frame(curves=False, datasets=datasets)
+        curves = store.curve_points(datasets)
+    if shown.empty:
+        return {}
+    primary = primary_metrics(shown, metrics)
+    return _images([("score_vs_fit_time",
+                     lambda: plots.score_vs_fit_time(strategy_means(shown, primary))),
+                    ("ensemble_size", lambda: plots.size_curves(curves, primary, shown))])
+
+
+def _verdict_figures(v: Verdict) -> Iterator[tuple[str, Maker]]:
+    if not v.tested:
+        return
+    n = len(v.matrix)
+    yield "critical_difference", lambda: cd_figure(
+        v.ranks, v.cd, v.nemenyi_groups,
+        f"Nemenyi critical difference, α = {v.alpha:g}, {n} datasets")
+    yield "wilcoxon_holm_groups", lambda: cd_figure(
+        v.ranks, None, v.wilcoxon_groups,
+        f"Not told apart by Wilcoxon–Holm, α = {v.alpha:g}, {n} datasets")
+    yield "rank_vs_fit_time", lambda: plots.rank_vs_fit_time(v.ranks, v.costs, n)
+    yield "probability_bars", lambda: verdict_plots.probability_bars(v)
+    yield "posterior_triangles", lambda: verdict_plots.triangles(v)
+
+
+# The verdict's figures drawn in the child, the slowest three; the critical difference
+# diagrams are drawn here meanwhile, so that both processes end at about the same time.
+APART = ("rank_vs_fit_time", "probability_bars", "posterior_triangles")
+_HERE = ("critical_difference", "wilcoxon_holm_groups")
+
+
+def verdict_images(v: Verdict | None, names=None) -> dict[str, bytes]:
+    """Figure name → PNG bytes of the across-dataset verdict's figures (none unless it was
+    tested); ``names``: only these."""
+    if v is None:
+        return {}
+    return _images([(n, make) for n, make in _verdict_figures(v) if names is None or n in names])
+
+
+def _images(makers: list[tuple[str, Maker]]) -> dict[str, bytes]:
+    """Each figure made and turned into PNG bytes before the next is made (a big figure
+    takes much memory)."""
+    out = {}
+    for name, make in makers:
+        fig = make()
+        if fig is not None:
+            out[name] = png(fig, dpi=_FINE.get(name, DPI))
+        del fig
+    return out
+
+
+def _drawn(v: Verdict | None) -> Verdict | None:
+    """``v`` with only what its figures read: not the per-dataset tables, nor the posterior
+    samples of pairs not drawn (on 100,000 cells, 27 MB pickled against 0.2 MB)."""
+    if v is None or not v.tested:
+        return v
+    shown = verdict_plots.drawn_pairs(v)
+    keep = set(zip(shown["a"], shown["b"]))
+    return dataclasses.replace(v, intervals=v.intervals.iloc[:0], pairs=v.pairs.iloc[:0],
+                               pareto=None,
+                               posterior={k: p for k, p in v.posterior.items() if k in keep})
+
+
+def can_fork() -> bool:
+    """Whether the figures can be drawn in a forked child: Linux (forking is safe there, and
+    cheap), with no other thread in this process (a fork copies only the calling thread, and
+    a lock another one held would never be released in the child)."""
+    return (sys.platform.startswith("linux") and "fork" in mp.get_all_start_methods()
+            and threading.active_count() == 1)
+
+
+def _child(conn, folder: Path, datasets: list[str], metrics) -> None:
+    signal.signal(signal.SIGINT, signal.SIG_IGN)  # Ctrl-C is the parent's to handle
+    signal.signal(signal.SIGTERM, signal.SIG_DFL)
+    die_with_parent()
+    try:
+        images = dataset_images(folder, datasets, metrics)
+        found = ("images", {**verdict_images(conn.recv(), APART), **images})
+    except EOFError:  # the parent went away without a verdict: nobody to draw for
+        return
+    except BaseException as exc:  # noqa: BLE001 - handed to the parent, which raises it
+        found = ("error", exc)
+    try:
+        try:
+            conn.send(found)
+        except (pickle.PicklingError, TypeError, AttributeError):  # said in words instead
+            conn.send(("error", RuntimeError(f"{type(found[1]).__name__}: {found[1]}")))
+    except OSError:  # the parent went away
+        pass
+
+
+class Drawing:
+    """The report's figures under way: the per-dataset figures start at once, in a forked
+    child where `can_fork` (or as ``apart`` says); `verdict` hands over the verdict and
+    `result` returns every figure. Use as a context manager, so that the child is ended
+    however the report ends."""
+
+    def __init__(self, folder: Path, datasets: list[str], metrics,
+                 apart: bool | None = None) -> None:
+        self.args = (Path(folder), list(datasets), metrics)
+        self.v: Verdict | None = None
+        self.proc = self.conn = self.sender = None
+        if can_fork() if apart is None else apart:
+            ctx = mp.get_context("fork")
+            self.conn, theirs = ctx.Pipe()
+            self.proc = ctx.Process(target=_child, args=(theirs, *self.args), daemon=True,
+                                    name="woodlot-figures")
+            self.proc.start()
+            theirs.close()
+
+    def verdict(self, v: Verdict | None) -> None:
+        """Draw ``v``'s figures too (None: there are none). Sent from a thread, so that the
+        report goes on while the child is still drawing and not yet reading."""
+        self.v = v
+        if self.proc is not None and self.sender is None:
+            self.sender = threading.Thread(target=self._send, args=(_drawn(v),), daemon=True)
+            self.sender.start()
+
+    def _send(self, v: Verdict | None) -> None:
+        try:
+            self.conn.send(v)
+        except OSError:  # the child is gone: `result` tells how
+            pass
+
+    def result(self) -> dict[str, bytes]:
+        """Every figure: the verdict's (in `_verdict_figures` order), then the per-dataset
+        ones. What the child raised is raised here; when it ended without a word (killed),
+        its figures are drawn here instead."""
+        if self.proc is None:
+            return self._ordered({**dataset_images(*self.args), **verdict_images(self.v)})
+        self.verdict(self.v)
+        try:  # the figures not drawn apart are drawn here meanwhile
+            mine = verdict_images(self.v, _HERE)
+            kind, theirs = self.conn.recv()
+        except EOFError:
+            kind, theirs = "images", None
+        finally:
+            self.close(wait=5.0)
+        if kind == "error":
+            raise theirs
+        if theirs is None:
+            theirs = {**dataset_images(*self.args), **verdict_images(self.v, APART)}
+        return self._ordered({**mine, **theirs})
+
+    def _ordered(self, images: dict[str, bytes]) -> dict[str, bytes]:
+        names = [n for n, _ in _verdict_figures(self.v)] if self.v is not None else []
+        names += [n for n in images if n not in names]
+        return {n: images[n] for n in names if n in images}
+
+    def close(self, wait: float = 0.0) -> None:
+        """End the child (when it is still drawing after ``wait`` seconds) and wait for it."""
+        if self.proc is not None:
+            self.proc.join(wait)
+            if self.proc.is_alive():
+                self.proc.terminate()
+            self.proc.join()
+            if self.sender is not None:
+                self.sender.join()
+            self.conn.close()
+            self.proc = None
+
+    def __enter__(self) -> "Drawing":
+        return self
+
+    def __exit__(self, *exc) -> None:
+        self.close()
