@@ -384,6 +384,20 @@ def tally(pairs: pd.DataFrame) -> pd.DataFrame:
             .sum().astype(int).reset_index())
 
 
+def dominance(score: np.ndarray, cost: np.ndarray, noise: np.ndarray) -> np.ndarray:
+    """``dom[j, i]``: point *j* dominates point *i* (`pareto_front` says when); ``noise``:
+    each cost's standard error (0 where unknown)."""
+    s, c = np.asarray(score, dtype=float), np.asarray(cost, dtype=float)
+    if not (np.all(np.isfinite(s)) and np.all(np.isfinite(c))):
+        raise ValueError("scores and costs must be finite")
+    noise = np.asarray(noise, dtype=float)
+    margin = 2 * np.sqrt(noise[:, None] ** 2 + noise[None, :] ** 2)
+    cheaper = c[None, :] - c[:, None] > margin            # [j, i]: j cheaper than i beyond noise
+    not_dearer = c[:, None] - c[None, :] <= margin
+    return ((s[:, None] >= s[None, :]) & not_dearer
+            & ((s[:, None] > s[None, :]) | cheaper))
+
+
 def pareto_front(points: Mapping[str, tuple[float, float]] | pd.DataFrame) -> pd.DataFrame:
     """Pareto front of score (maximised) against cost (minimised).
 
@@ -412,15 +426,8 @@ def pareto_front(points: Mapping[str, tuple[float, float]] | pd.DataFrame) -> pd
         frame = pd.DataFrame.from_dict(dict(points), orient="index", columns=["score", "cost"],
                                        dtype=float)
         noise = np.zeros(len(frame))
-    if not np.all(np.isfinite(frame.to_numpy())):
-        raise ValueError("scores and costs must be finite")
-    s, c = frame["score"].to_numpy(), frame["cost"].to_numpy()
+    dom = dominance(frame["score"].to_numpy(), frame["cost"].to_numpy(), noise)
     names = list(frame.index)
-    margin = 2 * np.sqrt(noise[:, None] ** 2 + noise[None, :] ** 2)
-    cheaper = c[None, :] - c[:, None] > margin            # [j, i]: j cheaper than i beyond noise
-    not_dearer = c[:, None] - c[None, :] <= margin
-    dom = ((s[:, None] >= s[None, :]) & not_dearer
-           & ((s[:, None] > s[None, :]) | cheaper))  # dom[j, i]: j dominates i
     out = frame.copy()
     out["dominated_by"] = [[names[j] for j in np.flatnonzero(dom[:, i])]
                            for i in range(len(names))]

@@ -379,32 +379,37 @@ def _costs(means: pd.DataFrame, block: pd.DataFrame) -> pd.DataFrame:
 _COST_KINDS = {"fit": "fit_seconds", "predict": "predict_ms_per_1000_rows"}
 
 
-def _front_rows(scope: str, kind: str, points: pd.DataFrame, rank_scale: bool) -> list[dict]:
-    pts = points.dropna(subset=["score", "cost"])
-    if pts.empty:
-        return []
-    front = stats.pareto_front(pts.assign(score=-pts["score"] if rank_scale else pts["score"]))
-    score = points["score"]
-    return [{"scope": scope, "cost_kind": kind, "strategy": name, "score": float(score[name]),
-             "cost": float(cost), "on_front": bool(on), "dominated_by": ", ".join(by)}
-            for name, cost, on, by in zip(front.index, front["cost"], front["on_front"],
-                                          front["dominated_by"])]
+def _front_rows(scope: str, kind: str, names: list[str], score: np.ndarray, cost: np.ndarray,
+                noise: np.ndarray, rank_scale: bool) -> list[dict]:
+    """The Pareto front of one scope and cost kind, a row per strategy with a score and a
+    cost (``noise``: the cost's standard error; ``rank_scale``: lower scores are better)."""
+    have = ~(np.isnan(score) | np.isnan(cost))
+    names = [n for n, h in zip(names, have) if h]
+    score, cost = score[have], cost[have]
+    noise = np.nan_to_num(noise[have], nan=0.0)
+    dom = stats.dominance(-score if rank_scale else score, cost, noise)
+    return [{"scope": scope, "cost_kind": kind, "strategy": name, "score": float(score[i]),
+             "cost": float(cost[i]), "on_front": not dom[:, i].any(),
+             "dominated_by": ", ".join(names[j] for j in np.flatnonzero(dom[:, i]))}
+            for i, name in enumerate(names)]
 
 
 def _pareto(means: pd.DataFrame, v: Verdict) -> pd.DataFrame:
     rows = []
     for ds, part in means.groupby("dataset", sort=False):
+        names, score = part["strategy"].tolist(), part["score"].to_numpy(float)
         for kind, col in _COST_KINDS.items():
-            pts = part.set_index("strategy")[["score", col, col + "_se"]].rename(
-                columns={col: "cost", col + "_se": "cost_noise"})
-            rows += _front_rows(ds, kind, pts, rank_scale=False)
+            rows += _front_rows(ds, kind, names, score, part[col].to_numpy(float),
+                                part[col + "_se"].to_numpy(float), rank_scale=False)
     if v.ranks is not None and v.costs is not None and len(v.ranks) >= 2 \
             and len(v.matrix) >= 2:
         c = v.costs.set_index("strategy")
+        names = [str(s) for s in v.ranks.index]
         for kind, col in _COST_KINDS.items():
-            pts = pd.DataFrame({"score": v.ranks, "cost": c[col].reindex(v.ranks.index),
-                                "cost_noise": c[col + "_se"].reindex(v.ranks.index)})
-            rows += _front_rows("all datasets", kind, pts, rank_scale=True)
+            rows += _front_rows("all datasets", kind, names, v.ranks.to_numpy(float),
+                                c[col].reindex(v.ranks.index).to_numpy(float),
+                                c[col + "_se"].reindex(v.ranks.index).to_numpy(float),
+                                rank_scale=True)
     return pd.DataFrame(rows, columns=["scope", "cost_kind", "strategy", "score", "cost",
                                        "on_front", "dominated_by"])
 

@@ -142,11 +142,11 @@ class Table:
         if self.group is None:
             self._groups = [(None, Cells.of(self.display), classes)]
             return self._groups
-        rows = self.display.drop(columns=[self.group])
+        cells = Cells.of(self.display.drop(columns=[self.group]))  # once, then split
         codes, values = pd.factorize(self.display[self.group], use_na_sentinel=False)
         order = np.argsort(codes, kind="stable")  # groups in order of first appearance
         ends = np.cumsum(np.bincount(codes, minlength=len(values)))
-        self._groups = [(str(g), Cells.of(rows.iloc[at]), [classes[i] for i in at])
+        self._groups = [(str(g), cells.take(at), [classes[i] for i in at])
                         for g, at in zip(values, np.split(order, ends[:-1]))]
         return self._groups
 
@@ -171,12 +171,28 @@ class Cells:
         columns, numeric, kinds = [], [], []
         for c in frame.columns:
             values = frame[c].tolist()  # Python scalars, whatever the column's dtype
-            columns.append([esc(_cell_text(v)) for v in values])
-            numeric.append([isinstance(v, (int, float, np.integer, np.floating))
-                            and not isinstance(v, (bool, np.bool_)) for v in values])
+            is_number = [isinstance(v, (int, float, np.integer, np.floating))
+                         and not isinstance(v, (bool, np.bool_)) for v in values]
+            texts: dict[str, str] = {}  # the same text (a strategy's name) escaped once
+
+            def text(v, texts=texts) -> str:
+                if not isinstance(v, str):
+                    return esc(_cell_text(v))
+                if v not in texts:
+                    texts[v] = esc(v)
+                return texts[v]
+
+            # a number's text is digits, signs and separators: nothing to escape
+            columns.append([number(v) if n else text(v) for v, n in zip(values, is_number)])
+            numeric.append(is_number)
             kinds.append(pd.api.types.is_numeric_dtype(frame[c])
                          and not pd.api.types.is_bool_dtype(frame[c]))
         return cls([esc(c) for c in frame.columns], columns, numeric, kinds)
+
+    def take(self, rows) -> "Cells":
+        """The cells of these rows (positions), in that order."""
+        return Cells(self.header, [[col[i] for i in rows] for col in self.columns],
+                     [[n[i] for i in rows] for n in self.numeric], self.numeric_columns)
 
     def rows(self) -> int:
         return len(self.columns[0]) if self.columns else 0

@@ -130,7 +130,7 @@ def intervals(v: Verdict) -> Table:
     for ds, part in v.intervals.groupby("dataset", sort=False):
         part = part.iloc[part["mean"].fillna(-np.inf).to_numpy().argsort(kind="stable")[::-1]]
         metric = part["metric"].iloc[0]
-        for _, r in part.iterrows():
+        for r in part.to_dict("records"):
             s = r["standing"]
             rows.append({"dataset": ds, "strategy": r["strategy"], "family": r["family"],
                          f"mean [{level} interval]": _read_interval(metric, r["mean"], r["low"],
@@ -331,22 +331,25 @@ def pareto(v: Verdict) -> Table:
     dominates each strategy."""
     rows = []
     scopes = sorted(v.pareto["scope"].unique(), key=lambda s: s != "all datasets")
+    points: dict[tuple, dict[str, dict]] = {}  # (scope, cost kind) → strategy → its row
+    for r in v.pareto.to_dict("records"):  # plain dicts: thousands of rows on a big store
+        points.setdefault((r["scope"], r["cost_kind"]), {})[r["strategy"]] = r
     for scope in scopes:
-        part = v.pareto[v.pareto["scope"] == scope]
-        fit, pred = (part[part["cost_kind"] == k].set_index("strategy") for k in COST_LABELS)
+        fit, pred = (points.get((scope, k), {}) for k in COST_LABELS)
         overall = scope == "all datasets"
         metric = None if overall else v.primary.get(scope)
-        order = fit["score"].sort_values(ascending=overall).index
+        order = pd.Series({s: r["score"] for s, r in fit.items()}, dtype=float) \
+            .sort_values(ascending=overall).index
         for s in order:
-            score = fit.loc[s, "score"]
+            score = fit[s]["score"]
             rows.append({"scope": scope,
                          "strategy": s,
                          "score": f"{score:.2f}" if overall else number(as_read(metric, score)),
-                         COST_LABELS["fit"]: fit.loc[s, "cost"],
-                         "fit: dominated by": fit.loc[s, "dominated_by"] or "on the front",
-                         COST_LABELS["predict"]: pred["cost"].get(s, np.nan),
-                         "prediction: dominated by": pred["dominated_by"].get(s)
-                         or "on the front"})
+                         COST_LABELS["fit"]: fit[s]["cost"],
+                         "fit: dominated by": fit[s]["dominated_by"] or "on the front",
+                         COST_LABELS["predict"]: pred[s]["cost"] if s in pred else np.nan,
+                         "prediction: dominated by": (pred[s]["dominated_by"] if s in pred
+                                                      else None) or "on the front"})
     titles = {s: ("All datasets: average rank; times are geometric means over datasets"
                   if s == "all datasets" else f"{s}: {metric_heading(v.primary[s])}")
               for s in scopes}
