@@ -96,11 +96,12 @@ def joint_means(scores: np.ndarray, ratio: float, size: int = 20000,
 
 
 @lru_cache(maxsize=16)
-def _dirichlet(n: int, samples: int, seed: int, prior: float) -> np.ndarray:
+def _dirichlet(n: int, samples: int, seed: int, prior: float, copies: int = 1) -> np.ndarray:
     """The posterior weights, one row per component and one column per sample (read-only:
-    kept for the next call with the same arguments, as `datasets_needed` makes many)."""
+    kept for the next call with the same arguments, as `datasets_needed` makes many);
+    ``copies``: each observation stands for that many equal ones."""
     # the legacy generator, so that a seed gives the same weights as the reference package
-    weights = np.ones(n + 1)
+    weights = np.full(n + 1, float(copies))
     weights[0] = prior
     w = np.ascontiguousarray(np.random.RandomState(seed).dirichlet(weights, samples).T)
     w.flags.writeable = False
@@ -108,8 +109,9 @@ def _dirichlet(n: int, samples: int, seed: int, prior: float) -> np.ndarray:
 
 
 def signed_rank(diffs, margin, samples: int = SAMPLES, seed: int = 0, prior: float = PRIOR,
-                keep: int = 0) -> tuple[np.ndarray, np.ndarray | None]:
-    """Bayesian signed-rank test of each row of ``diffs`` (pairs × datasets, ``a − b``).
+                keep: int = 0, copies: int = 1) -> tuple[np.ndarray, np.ndarray | None]:
+    """Bayesian signed-rank test of each row of ``diffs`` (pairs × datasets, ``a − b``);
+    ``copies``: as if each difference had been observed that many times.
 
     For a weight vector ``w`` of the Dirichlet posterior over ``z = (0, d_1, …, d_N)``, the
     probability that ``a`` is better is ``Σ_i Σ_j w_i w_j H(z_i + z_j − 2r)`` (H the step
@@ -127,7 +129,10 @@ def signed_rank(diffs, margin, samples: int = SAMPLES, seed: int = 0, prior: flo
     d = np.atleast_2d(np.asarray(diffs, dtype=float))
     pairs, n = d.shape
     margin = np.broadcast_to(np.asarray(margin, dtype=float), (pairs,))
-    w = _dirichlet(n, samples, seed, prior)                   # (N + 1) × samples
+    # N·c observations in c equal copies: the weights of each copy summed are Dirichlet with
+    # parameter c (the Dirichlet's aggregation property), and the probabilities depend only
+    # on those sums, so N components do the work of N·c
+    w = _dirichlet(n, samples, seed, prior, copies)           # (N + 1) × samples
     probs = np.zeros((pairs, 3))
     kept = np.zeros((pairs, keep, 3)) if keep else None
     # buffers reused by every pair: a fresh array of this size per step and pair costs the
@@ -240,7 +245,7 @@ def datasets_needed(d, margin: float, certainty: float, cap: int = 200,
     n = max(len(d), 1)
 
     def decides(copies: int) -> bool:
-        probs, _ = signed_rank(np.tile(d, copies), margin, samples=samples)
+        probs, _ = signed_rank(d, margin, samples=samples, copies=copies)
         return bool(probs.max() >= certainty)
 
     most = cap // n
