@@ -1,11 +1,12 @@
 """The report's figures, drawn in a process of their own while the report's own process
 computes the verdict and the tables.
 
-The figures with one panel per dataset (score against fit time; score as the ensemble grows)
-need only the cells of the datasets shown, read from the store, and start at once; the
-verdict's figures (critical differences, rank against fit time, the posterior pictures)
-follow when the verdict is handed over. Drawing is most of a big store's report that does not
-need the verdict (see the README's figures on a store of 100,000 cells).
+The process reads the ensemble-size curves of the datasets shown from the store at once; it
+is handed the per-dataset means as soon as the report has read the cells, then the verdict.
+It draws the figures with one panel per dataset (score against fit time; score as the
+ensemble grows) and the slowest of the verdict's figures; the report draws the critical
+difference diagrams meanwhile. Drawing is about half of a big store's report (see the
+README's figures on a store of 100,000 cells).
 
 On Linux the process is forked (it starts at once, with the libraries already imported) when
 no other thread runs; elsewhere the same figures are drawn in the report's own process, when
@@ -17,15 +18,16 @@ from __future__ import annotations
 import dataclasses
 import multiprocessing as mp
 import pickle
+import queue
 import signal
 import sys
 import threading
 from pathlib import Path
 from typing import Callable, Iterator
 
+import pandas as pd
 from matplotlib.figure import Figure
 
-from harness.analysis.results import primary_metrics, strategy_means
 from harness.analysis.verdict import Verdict
 from harness.execution.processes import die_with_parent
 from harness.report import plots, verdict_plots
@@ -38,26 +40,42 @@ from harness.store import Store
 MAX_PANELS = 12
 # the critical difference diagrams are small and full of text: drawn finer
 _FINE = {"critical_difference": 150, "wilcoxon_holm_groups": 150}
+# The verdict's figures drawn in the child, the slowest three; the critical difference
+# diagrams are drawn here meanwhile, so that both processes end at about the same time.
+APART = ("rank_vs_fit_time", "probability_bars", "posterior_triangles")
+_HERE = ("critical_difference", "wilcoxon_holm_groups")
 
 Maker = Callable[[], Figure | None]
 
 
-def dataset_images(folder: Path, datasets: list[str], metrics: dict[str, list[str]] | None
-                   ) -> dict[str, bytes]:
-    """Figure name → PNG bytes of the per-dataset figures, for the latest plan's cells of
-    ``datasets`` (``metrics``: the suite's metrics per task, as the verdict takes them); a
-    figure with nothing to show is left out."""
+@dataclasses.dataclass
+class Panels:
+    """What the per-dataset figures show besides the curves: each dataset's metric
+    (``primary``), the per-dataset means of its strategies (`strategy_means` of the cells
+    of the datasets shown) and those cells' strategies with their method and family, in
+    the order of the cells (for colours and markers)."""
+
+    primary: dict[str, str]
+    means: pd.DataFrame
+    strategies: pd.DataFrame
+
+
+def read_curves(folder: Path, datasets: list[str]) -> pd.DataFrame:
+    """The ensemble-size curves of the latest plan's cells of ``datasets``."""
     if not datasets:
-        return {}
+        return pd.DataFrame()
     with Store(folder, read_only=True) as store:
-        shown = store.cells_frame(curves=False, datasets=datasets)
-        curves = store.curve_points(datasets)
-    if shown.empty:
+        return store.curve_points(datasets)
+
+
+def dataset_images(curves: pd.DataFrame, panels: Panels | None) -> dict[str, bytes]:
+    """Figure name → PNG bytes of the per-dataset figures (a figure with nothing to show is
+    left out)."""
+    if panels is None or panels.means.empty:
         return {}
-    primary = primary_metrics(shown, metrics)
-    return _images([("score_vs_fit_time",
-                     lambda: plots.score_vs_fit_time(strategy_means(shown, primary))),
-                    ("ensemble_size", lambda: plots.size_curves(curves, primary, shown))])
+    return _images([("score_vs_fit_time", lambda: plots.score_vs_fit_time(panels.means)),
+                    ("ensemble_size", lambda: plots.size_curves(curves, panels.primary,
+                                                                panels.strategies))])
 
 
 def _verdict_figures(v: Verdict) -> Iterator[tuple[str, Maker]]:
@@ -73,12 +91,6 @@ def _verdict_figures(v: Verdict) -> Iterator[tuple[str, Maker]]:
     yield "rank_vs_fit_time", lambda: plots.rank_vs_fit_time(v.ranks, v.costs, n)
     yield "probability_bars", lambda: verdict_plots.probability_bars(v)
     yield "posterior_triangles", lambda: verdict_plots.triangles(v)
-
-
-# The verdict's figures drawn in the child, the slowest three; the critical difference
-# diagrams are drawn here meanwhile, so that both processes end at about the same time.
-APART = ("rank_vs_fit_time", "probability_bars", "posterior_triangles")
-_HERE = ("critical_difference", "wilcoxon_holm_groups")
 
 
 def verdict_images(v: Verdict | None, names=None) -> dict[str, bytes]:
@@ -103,14 +115,11 @@ def _images(makers: list[tuple[str, Maker]]) -> dict[str, bytes]:
 
 def _drawn(v: Verdict | None) -> Verdict | None:
     """``v`` with only what its figures read: not the per-dataset tables, nor the posterior
-    samples of pairs not drawn (on 100,000 cells, 27 MB pickled against 0.2 MB)."""
+    samples of pairs not drawn (on 100,000 cells, 27 MB pickled against 2 MB)."""
     if v is None or not v.tested:
         return v
-    shown = verdict_plots.drawn_pairs(v)
-    keep = set(zip(shown["a"], shown["b"]))
     return dataclasses.replace(v, intervals=v.intervals.iloc[:0], pairs=v.pairs.iloc[:0],
-                               pareto=None,
-                               posterior={k: p for k, p in v.posterior.items() if k in keep})
+                               pareto=None, posterior=verdict_plots.drawn_posterior(v))
 
 
 def can_fork() -> bool:
@@ -121,14 +130,16 @@ def can_fork() -> bool:
             and threading.active_count() == 1)
 
 
-def _child(conn, folder: Path, datasets: list[str], metrics) -> None:
+def _child(conn, folder: Path, datasets: list[str]) -> None:
     signal.signal(signal.SIGINT, signal.SIG_IGN)  # Ctrl-C is the parent's to handle
     signal.signal(signal.SIGTERM, signal.SIG_DFL)
     die_with_parent()
     try:
-        images = dataset_images(folder, datasets, metrics)
+        curves = read_curves(folder, datasets)
+        images = dataset_images(curves, conn.recv())
+        del curves
         found = ("images", {**verdict_images(conn.recv(), APART), **images})
-    except EOFError:  # the parent went away without a verdict: nobody to draw for
+    except EOFError:  # the parent went away: nobody to draw for
         return
     except BaseException as exc:  # noqa: BLE001 - handed to the parent, which raises it
         found = ("error", exc)
@@ -141,46 +152,66 @@ def _child(conn, folder: Path, datasets: list[str], metrics) -> None:
         pass
 
 
-class Drawing:
-    """The report's figures under way: the per-dataset figures start at once, in a forked
-    child where `can_fork` (or as ``apart`` says); `verdict` hands over the verdict and
-    `result` returns every figure. Use as a context manager, so that the child is ended
-    however the report ends."""
+_END = object()
 
-    def __init__(self, folder: Path, datasets: list[str], metrics,
-                 apart: bool | None = None) -> None:
-        self.args = (Path(folder), list(datasets), metrics)
+
+class Drawing:
+    """The report's figures under way: a forked child where `can_fork` (or as ``apart``
+    says) reads the curves of ``datasets`` at once; `panels` hands over what the per-dataset
+    figures show, `verdict` the verdict, and `result` returns every figure. Use as a context
+    manager, so that the child is ended however the report ends."""
+
+    def __init__(self, folder: Path, datasets: list[str], apart: bool | None = None) -> None:
+        self.folder, self.datasets = Path(folder), list(datasets)
+        self.shown: Panels | None = None
         self.v: Verdict | None = None
+        self.handed: list[str] = []  # what has been handed over: "panels", "verdict"
         self.proc = self.conn = self.sender = None
         if can_fork() if apart is None else apart:
             ctx = mp.get_context("fork")
             self.conn, theirs = ctx.Pipe()
-            self.proc = ctx.Process(target=_child, args=(theirs, *self.args), daemon=True,
-                                    name="woodlot-figures")
+            self.proc = ctx.Process(target=_child, args=(theirs, self.folder, self.datasets),
+                                    daemon=True, name="woodlot-figures")
             self.proc.start()
             theirs.close()
-
-    def verdict(self, v: Verdict | None) -> None:
-        """Draw ``v``'s figures too (None: there are none). Sent from a thread, so that the
-        report goes on while the child is still drawing and not yet reading."""
-        self.v = v
-        if self.proc is not None and self.sender is None:
-            self.sender = threading.Thread(target=self._send, args=(_drawn(v),), daemon=True)
+            # what is handed over is sent from a thread, so that the report goes on while
+            # the child is still drawing and not yet reading
+            self.outbox: queue.Queue = queue.Queue()
+            self.sender = threading.Thread(target=self._send, daemon=True)
             self.sender.start()
 
-    def _send(self, v: Verdict | None) -> None:
-        try:
-            self.conn.send(v)
-        except OSError:  # the child is gone: `result` tells how
-            pass
+    def _send(self) -> None:
+        while (item := self.outbox.get()) is not _END:
+            try:
+                self.conn.send(item)
+            except OSError:  # the child is gone: `result` tells how
+                return
+
+    def panels(self, shown: Panels | None) -> None:
+        """What the per-dataset figures show (None: no figures); call once, before
+        `verdict`."""
+        self.shown = shown
+        self.handed.append("panels")
+        if self.proc is not None:
+            self.outbox.put(shown)
+
+    def verdict(self, v: Verdict | None) -> None:
+        """The verdict whose figures to draw (None: none); call once, after `panels`."""
+        if "panels" not in self.handed:
+            self.panels(None)
+        self.v = v
+        self.handed.append("verdict")
+        if self.proc is not None:
+            self.outbox.put(_drawn(v))
 
     def result(self) -> dict[str, bytes]:
         """Every figure: the verdict's (in `_verdict_figures` order), then the per-dataset
         ones. What the child raised is raised here; when it ended without a word (killed),
         its figures are drawn here instead."""
+        if "verdict" not in self.handed:
+            self.verdict(None)
         if self.proc is None:
-            return self._ordered({**dataset_images(*self.args), **verdict_images(self.v)})
-        self.verdict(self.v)
+            return self._ordered({**self._dataset_images(), **verdict_images(self.v)})
         try:  # the figures not drawn apart are drawn here meanwhile
             mine = verdict_images(self.v, _HERE)
             kind, theirs = self.conn.recv()
@@ -191,8 +222,13 @@ class Drawing:
         if kind == "error":
             raise theirs
         if theirs is None:
-            theirs = {**dataset_images(*self.args), **verdict_images(self.v, APART)}
+            theirs = {**self._dataset_images(), **verdict_images(self.v, APART)}
         return self._ordered({**mine, **theirs})
+
+    def _dataset_images(self) -> dict[str, bytes]:
+        if self.shown is None:
+            return {}
+        return dataset_images(read_curves(self.folder, self.datasets), self.shown)
 
     def _ordered(self, images: dict[str, bytes]) -> dict[str, bytes]:
         names = [n for n, _ in _verdict_figures(self.v)] if self.v is not None else []
@@ -202,12 +238,12 @@ class Drawing:
     def close(self, wait: float = 0.0) -> None:
         """End the child (when it is still drawing after ``wait`` seconds) and wait for it."""
         if self.proc is not None:
+            self.outbox.put(_END)
             self.proc.join(wait)
             if self.proc.is_alive():
                 self.proc.terminate()
             self.proc.join()
-            if self.sender is not None:
-                self.sender.join()
+            self.sender.join()
             self.conn.close()
             self.proc = None
 

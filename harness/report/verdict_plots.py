@@ -31,6 +31,15 @@ def drawn_pairs(v: Verdict) -> pd.DataFrame:
     return a[(a["a"] == v.best) | (a["b"] == v.best)].head(MAX_PAIRS)
 
 
+def drawn_posterior(v: Verdict) -> dict[tuple[str, str], np.ndarray]:
+    """The posterior samples of the pairs the pictures show, copied (so that those of the
+    other pairs, 20 MB for 300 pairs, can be let go)."""
+    if v.across is None or not v.posterior:
+        return {}
+    return {k: np.array(v.posterior[k]) for k in zip(*(drawn_pairs(v)[c] for c in "ab"))
+            if k in v.posterior}
+
+
 def _project(samples: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """(b better, equivalent, a better) → the triangle with a better at the bottom left,
     b better at the bottom right and equivalent at the top."""

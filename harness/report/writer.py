@@ -17,18 +17,26 @@ from matplotlib.figure import Figure
 from threadpoolctl import threadpool_limits
 
 from harness.analysis import tuning
+from harness.analysis.results import primary_metrics, strategy_means
 from harness.analysis.speedup import summarize
 from harness.analysis.verdict import Verdict, verdict
 from harness.files import writable_folder, write_bytes, write_text
 from harness.folder_lock import running_elsewhere
 from harness.report import plots, speedup_plots, tables, tuning_tables, verdict_plots, words
-from harness.report.drawing import MAX_PANELS, Drawing
+from harness.report.drawing import MAX_PANELS, Drawing, Panels
 from harness.report.images import png
 from harness.report.outputs import STATE_NAME, SUMMARY_NAME, Outputs, state_text
 from harness.report.page import REPORT_NAME, PageContent, render
 from harness.report.render import Table, md_text, to_markdown
 from harness.store import Store
 from harness.scorers import Equivalence
+
+# what the report reads of each cell, besides its identity, scores and tuning (not the
+# traceback, worker, timing mode or times of day: less to read and hold on a big store)
+_READ = ("method", "family", "task", "fingerprint", "n_train", "n_test", "status", "message",
+         "fit_seconds", "fit_cpu_seconds", "predict_seconds", "peak_memory_bytes", "model_bytes",
+         "row_evidence")
+
 
 def executor_text(prov: dict) -> str:
     """Where a run's cells ran, in words, from its provenance."""
@@ -172,23 +180,22 @@ def write_report(folder: str | Path, recommendation: list[str] | None = None,
         points_frame = store.speedup_frame()
         runs = _computing_runs(store, counts, points_frame)
         last = store.last_run()
-        metrics = ((runs[-1] if runs else last) or {}).get("provenance", {}).get("metrics")
         panels = list(dict.fromkeys(d for d, _, _ in counts))[:MAX_PANELS]
     # the figures are drawn from here on in a second process (`harness.report.drawing`);
     # one BLAS thread here: the report's matrices are small, and a BLAS thread waiting for
     # the core the figures take made the verdict 1.5 s slower on 100,000 cells
-    with Drawing(folder, panels, metrics) as drawing, threadpool_limits(1, user_api="blas"):
-        return _write(folder, drawing, points_frame, runs, last,
+    with Drawing(folder, panels) as drawing, threadpool_limits(1, user_api="blas"):
+        return _write(folder, drawing, panels, points_frame, runs, last,
                       recommendation or [], recommendation_sections or [], out)
 
 
-def _write(folder: Path, drawing: Drawing, points_frame: pd.DataFrame, runs: list[dict],
-           last: dict | None, recommendation: list[str],
+def _write(folder: Path, drawing: Drawing, panels: list[str], points_frame: pd.DataFrame,
+           runs: list[dict], last: dict | None, recommendation: list[str],
            recommendation_sections: list[tuple[str, list[str]]],
            out: str | Path | None) -> Outputs:
     with Store(folder, read_only=True) as store:
         state = store.state()
-        frame = store.cells_frame(curves=False)
+        frame = store.cells_frame(curves=False, columns=_READ)
         summaries = store.dataset_summaries()
         tuned = not frame.empty and bool(frame["tuned"].any())
         trials = store.trials_frame() if tuned else pd.DataFrame()
@@ -217,8 +224,14 @@ def _write(folder: Path, drawing: Drawing, points_frame: pd.DataFrame, runs: lis
     n_cells, n_datasets = len(frame), frame["dataset"].nunique() if not frame.empty else 0
     n_strategies = frame["strategy"].nunique() if not frame.empty else 0
     if not frame.empty:
+        shown = frame[frame["dataset"].isin(panels)]
+        primary = primary_metrics(frame, provenance.get("metrics"))
+        drawing.panels(Panels(primary, strategy_means(shown, primary),
+                              shown[["strategy", "method", "family"]].drop_duplicates()))
+        del shown
         v = verdict(frame, provenance.get("metrics"),
                     Equivalence.from_settings(provenance.get("equivalence")))
+        v.posterior = verdict_plots.drawn_posterior(v)  # only those drawn are kept
         out.verdict = v
         drawing.verdict(v)  # its figures are drawn beside the tables
         found += [tables.scores(frame), tables.costs(frame)]
