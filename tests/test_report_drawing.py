@@ -6,6 +6,8 @@ from __future__ import annotations
 
 import os
 import signal
+import subprocess
+import sys
 
 import psutil
 import pytest
@@ -96,3 +98,15 @@ def test_an_interrupted_report_leaves_no_drawing_process(folder, tmp_path, monke
         write_report(folder, out=tmp_path / "out")
     assert children() == before
     assert not (tmp_path / "out" / "report.html").exists()
+
+
+def test_the_report_process_itself_loads_no_plotting_library(folder, tmp_path):
+    # the figures are drawn in the forked process, so the report's own needs no matplotlib
+    # (a store without tuning or speedup runs)
+    code = ("import sys; from harness.report.writer import write_report; "
+            f"write_report({str(folder)!r}, out={str(tmp_path / 'out')!r}); "
+            "print(sorted(m for m in sys.modules if m.split('.')[0] == 'matplotlib'))")
+    done = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
+                          check=True)
+    assert done.stdout.strip() == "[]"
+    assert len(list((tmp_path / "out" / "plots").glob("*.png"))) == len(FIGURES)

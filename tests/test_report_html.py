@@ -178,7 +178,7 @@ def test_store_without_accuracy_cells_still_gets_a_report(tmp_path):
 
 def test_per_dataset_figures_stop_at_a_dozen_datasets_and_say_so(write_suite, tmp_path):
     from harness import run_suite
-    from harness.report.drawing import MAX_PANELS
+    from harness.report.shown import MAX_PANELS
     from harness.report.images import DPI
 
     datasets = "".join(f"""
@@ -212,7 +212,7 @@ repeats = 1
 def test_verdict_pictures_past_two_dozen_pairs_show_the_best_strategys_pairs(write_suite,
                                                                               tmp_path):
     from harness import run_suite
-    from harness.report.verdict_plots import MAX_PAIRS
+    from harness.report.shown import MAX_PAIRS
 
     trees = "".join(f"""
 [[strategy]]

@@ -1,16 +1,17 @@
 """The report's figures, drawn in a process of their own while the report's own process
 computes the verdict and the tables.
 
-The process reads the ensemble-size curves of the datasets shown from the store at once; it
-is handed the per-dataset means as soon as the report has read the cells, then the verdict.
-It draws the figures with one panel per dataset (score against fit time; score as the
-ensemble grows) and the slowest of the verdict's figures; the report draws the critical
-difference diagrams meanwhile. Drawing is about half of a big store's report (see the
-README's figures on a store of 100,000 cells).
+The process reads the ensemble-size curves of the datasets shown from the store and loads
+the plotting library at once; it is handed the per-dataset means as soon as the report has
+read the cells, then the verdict. It draws the figures with one panel per dataset (score
+against fit time; score as the ensemble grows) and the verdict's figures. Drawing is about
+half of a big store's report (see the README's figures on a store of 100,000 cells), and the
+report's own process need not load matplotlib at all (unless it draws the tuning or speedup
+figures).
 
-On Linux the process is forked (it starts at once, with the libraries already imported) when
-no other thread runs; elsewhere the same figures are drawn in the report's own process, when
-they are asked for. Either way the bytes are the same.
+On Linux the process is forked (it starts at once, with the other libraries already
+imported) when no other thread runs; elsewhere the same figures are drawn in the report's
+own process, when they are asked for. Either way the bytes are the same.
 """
 
 from __future__ import annotations
@@ -23,29 +24,28 @@ import signal
 import sys
 import threading
 from pathlib import Path
-from typing import Callable, Iterator
+from typing import TYPE_CHECKING, Callable, Iterator
 
 import pandas as pd
-from matplotlib.figure import Figure
 
 from harness.analysis.verdict import Verdict
 from harness.execution.processes import die_with_parent
-from harness.report import plots, verdict_plots
-from harness.report.cd_diagram import cd_figure
-from harness.report.images import DPI, png
+from harness.report.shown import drawn_posterior
 from harness.store import Store
 
-# Figures with one panel per dataset show at most this many datasets (the first by name):
-# past that they take longer to draw than everything else and are too tall to read.
-MAX_PANELS = 12
+if TYPE_CHECKING:
+    from matplotlib.figure import Figure
+
 # the critical difference diagrams are small and full of text: drawn finer
 _FINE = {"critical_difference": 150, "wilcoxon_holm_groups": 150}
-# The verdict's figures drawn in the child, the slowest three; the critical difference
-# diagrams are drawn here meanwhile, so that both processes end at about the same time.
-APART = ("rank_vs_fit_time", "probability_bars", "posterior_triangles")
-_HERE = ("critical_difference", "wilcoxon_holm_groups")
 
-Maker = Callable[[], Figure | None]
+Maker = Callable[[], "Figure | None"]
+
+
+def _plotting():
+    """The plotting modules (matplotlib), loaded when first drawn with."""
+    from harness.report import cd_diagram, images, plots, verdict_plots
+    return cd_diagram, images, plots, verdict_plots
 
 
 @dataclasses.dataclass
@@ -73,6 +73,7 @@ def dataset_images(curves: pd.DataFrame, panels: Panels | None) -> dict[str, byt
     left out)."""
     if panels is None or panels.means.empty:
         return {}
+    _, _, plots, _ = _plotting()
     return _images([("score_vs_fit_time", lambda: plots.score_vs_fit_time(panels.means)),
                     ("ensemble_size", lambda: plots.size_curves(curves, panels.primary,
                                                                 panels.strategies))])
@@ -81,11 +82,12 @@ def dataset_images(curves: pd.DataFrame, panels: Panels | None) -> dict[str, byt
 def _verdict_figures(v: Verdict) -> Iterator[tuple[str, Maker]]:
     if not v.tested:
         return
+    cd_diagram, _, plots, verdict_plots = _plotting()
     n = len(v.matrix)
-    yield "critical_difference", lambda: cd_figure(
+    yield "critical_difference", lambda: cd_diagram.cd_figure(
         v.ranks, v.cd, v.nemenyi_groups,
         f"Nemenyi critical difference, α = {v.alpha:g}, {n} datasets")
-    yield "wilcoxon_holm_groups", lambda: cd_figure(
+    yield "wilcoxon_holm_groups", lambda: cd_diagram.cd_figure(
         v.ranks, None, v.wilcoxon_groups,
         f"Not told apart by Wilcoxon–Holm, α = {v.alpha:g}, {n} datasets")
     yield "rank_vs_fit_time", lambda: plots.rank_vs_fit_time(v.ranks, v.costs, n)
@@ -93,22 +95,21 @@ def _verdict_figures(v: Verdict) -> Iterator[tuple[str, Maker]]:
     yield "posterior_triangles", lambda: verdict_plots.triangles(v)
 
 
-def verdict_images(v: Verdict | None, names=None) -> dict[str, bytes]:
+def verdict_images(v: Verdict | None) -> dict[str, bytes]:
     """Figure name → PNG bytes of the across-dataset verdict's figures (none unless it was
-    tested); ``names``: only these."""
-    if v is None:
-        return {}
-    return _images([(n, make) for n, make in _verdict_figures(v) if names is None or n in names])
+    tested)."""
+    return _images(list(_verdict_figures(v))) if v is not None else {}
 
 
 def _images(makers: list[tuple[str, Maker]]) -> dict[str, bytes]:
     """Each figure made and turned into PNG bytes before the next is made (a big figure
     takes much memory)."""
+    _, images, _, _ = _plotting()
     out = {}
     for name, make in makers:
         fig = make()
         if fig is not None:
-            out[name] = png(fig, dpi=_FINE.get(name, DPI))
+            out[name] = images.png(fig, dpi=_FINE.get(name, images.DPI))
         del fig
     return out
 
@@ -119,7 +120,7 @@ def _drawn(v: Verdict | None) -> Verdict | None:
     if v is None or not v.tested:
         return v
     return dataclasses.replace(v, intervals=v.intervals.iloc[:0], pairs=v.pairs.iloc[:0],
-                               pareto=None, posterior=verdict_plots.drawn_posterior(v))
+                               pareto=None, posterior=drawn_posterior(v))
 
 
 def can_fork() -> bool:
@@ -136,9 +137,10 @@ def _child(conn, folder: Path, datasets: list[str]) -> None:
     die_with_parent()
     try:
         curves = read_curves(folder, datasets)
+        _plotting()  # loaded while the report reads the cells
         images = dataset_images(curves, conn.recv())
         del curves
-        found = ("images", {**verdict_images(conn.recv(), APART), **images})
+        found = ("images", {**verdict_images(conn.recv()), **images})
     except EOFError:  # the parent went away: nobody to draw for
         return
     except BaseException as exc:  # noqa: BLE001 - handed to the parent, which raises it
@@ -205,35 +207,26 @@ class Drawing:
             self.outbox.put(_drawn(v))
 
     def result(self) -> dict[str, bytes]:
-        """Every figure: the verdict's (in `_verdict_figures` order), then the per-dataset
-        ones. What the child raised is raised here; when it ended without a word (killed),
-        its figures are drawn here instead."""
+        """Every figure: the verdict's, then the per-dataset ones. What the child raised is
+        raised here; when it ended without a word (killed), the figures are drawn here."""
         if "verdict" not in self.handed:
             self.verdict(None)
         if self.proc is None:
-            return self._ordered({**self._dataset_images(), **verdict_images(self.v)})
-        try:  # the figures not drawn apart are drawn here meanwhile
-            mine = verdict_images(self.v, _HERE)
-            kind, theirs = self.conn.recv()
+            return self._here()
+        try:
+            kind, found = self.conn.recv()
         except EOFError:
-            kind, theirs = "images", None
+            kind, found = "images", None
         finally:
             self.close(wait=5.0)
         if kind == "error":
-            raise theirs
-        if theirs is None:
-            theirs = {**self._dataset_images(), **verdict_images(self.v, APART)}
-        return self._ordered({**mine, **theirs})
+            raise found
+        return found if found is not None else self._here()
 
-    def _dataset_images(self) -> dict[str, bytes]:
-        if self.shown is None:
-            return {}
-        return dataset_images(read_curves(self.folder, self.datasets), self.shown)
-
-    def _ordered(self, images: dict[str, bytes]) -> dict[str, bytes]:
-        names = [n for n, _ in _verdict_figures(self.v)] if self.v is not None else []
-        names += [n for n in images if n not in names]
-        return {n: images[n] for n in names if n in images}
+    def _here(self) -> dict[str, bytes]:
+        images = ({} if self.shown is None else
+                  dataset_images(read_curves(self.folder, self.datasets), self.shown))
+        return {**verdict_images(self.v), **images}
 
     def close(self, wait: float = 0.0) -> None:
         """End the child (when it is still drawing after ``wait`` seconds) and wait for it."""

@@ -1,43 +1,22 @@
 """Pictures of the across-dataset verdicts, as `matplotlib.figure.Figure` (never pyplot): for
 each pair, the posterior samples of the Bayesian signed-rank test in a triangle (a corner per
 outcome: a better, b better, practically equivalent), and the three probabilities as one
-stacked bar per pair. Past `MAX_PAIRS` pairs both show the pairs of the best-ranked strategy
-only (`drawn_pairs`)."""
+stacked bar per pair. Past `harness.report.shown.MAX_PAIRS` pairs both show the pairs of the
+best-ranked strategy only (`harness.report.shown.drawn_pairs`)."""
 
 from __future__ import annotations
 
 import math
 
 import numpy as np
-import pandas as pd
 from matplotlib.figure import Figure
 
 from harness.analysis.verdict import Verdict
+from harness.report.shown import drawn_pairs
 from harness.report.style import plain
 
 A_COLOUR, EQ_COLOUR, B_COLOUR = "#2e7d32", "#9e9e9e", "#c62828"
 _H = math.sqrt(3) / 2
-# Pairs drawn at most: k strategies make k(k − 1)/2 pairs (300 for 25), whose triangles would
-# take longer to draw than all the rest of the report and make a page too tall to read.
-MAX_PAIRS = 24
-
-
-def drawn_pairs(v: Verdict) -> pd.DataFrame:
-    """The rows of ``v.across`` the pictures show: every pair, or past `MAX_PAIRS` the pairs
-    of the best-ranked strategy (at most `MAX_PAIRS` of them)."""
-    if len(v.across) <= MAX_PAIRS:
-        return v.across
-    a = v.across
-    return a[(a["a"] == v.best) | (a["b"] == v.best)].head(MAX_PAIRS)
-
-
-def drawn_posterior(v: Verdict) -> dict[tuple[str, str], np.ndarray]:
-    """The posterior samples of the pairs the pictures show, copied (so that those of the
-    other pairs, 20 MB for 300 pairs, can be let go)."""
-    if v.across is None or not v.posterior:
-        return {}
-    return {k: np.array(v.posterior[k]) for k in zip(*(drawn_pairs(v)[c] for c in "ab"))
-            if k in v.posterior}
 
 
 def _project(samples: np.ndarray) -> tuple[np.ndarray, np.ndarray]:

@@ -13,7 +13,6 @@ import time
 from pathlib import Path
 
 import pandas as pd
-from matplotlib.figure import Figure
 from threadpoolctl import threadpool_limits
 
 from harness.analysis import tuning
@@ -22,9 +21,9 @@ from harness.analysis.speedup import summarize
 from harness.analysis.verdict import Verdict, verdict
 from harness.files import writable_folder, write_bytes, write_text
 from harness.folder_lock import running_elsewhere
-from harness.report import plots, speedup_plots, tables, tuning_tables, verdict_plots, words
-from harness.report.drawing import MAX_PANELS, Drawing, Panels
-from harness.report.images import png
+from harness.report import tables, tuning_tables, words
+from harness.report.drawing import Drawing, Panels
+from harness.report.shown import MAX_PAIRS, MAX_PANELS, drawn_pairs, drawn_posterior
 from harness.report.outputs import STATE_NAME, SUMMARY_NAME, Outputs, state_text
 from harness.report.page import REPORT_NAME, PageContent, render
 from harness.report.render import Table, md_text, to_markdown
@@ -139,6 +138,7 @@ def _tuning(frame: pd.DataFrame, trials: pd.DataFrame, refits: pd.DataFrame, v: 
     curves = tuning.mean_curves(tuning.tuning_curves(trials, refits, v.primary))
     curves = curves.merge(frame[["strategy", "method", "family"]].drop_duplicates("strategy"),
                           on="strategy")
+    from harness.report import plots  # matplotlib, only when there is tuning to draw
     draw("tuning_curves", plots.tuning_curves(curves, v.primary))
     found = [tuning_tables.gains(g, v.alpha, v.certainty), tuning_tables.summary(s)]
     if not r.empty:
@@ -215,9 +215,11 @@ def _write(folder: Path, drawing: Drawing, panels: list[str], points_frame: pd.D
     out.files.append(write_text(target / "provenance.json", json.dumps(provenance, indent=2)))
     images: dict[str, bytes] = {}
 
-    def draw(name: str, fig: Figure | None) -> None:
-        """Keep the figure as PNG bytes and let it go (big figures take much memory)."""
+    def draw(name: str, fig) -> None:
+        """Keep the figure (a matplotlib ``Figure`` or None) as PNG bytes and let it go (big
+        figures take much memory)."""
         if fig is not None:
+            from harness.report.images import png
             images[name] = png(fig)
 
     found: list[Table] = []
@@ -231,7 +233,7 @@ def _write(folder: Path, drawing: Drawing, panels: list[str], points_frame: pd.D
         del shown
         v = verdict(frame, provenance.get("metrics"),
                     Equivalence.from_settings(provenance.get("equivalence")))
-        v.posterior = verdict_plots.drawn_posterior(v)  # only those drawn are kept
+        v.posterior = drawn_posterior(v)  # only those drawn are kept
         out.verdict = v
         drawing.verdict(v)  # its figures are drawn beside the tables
         found += [tables.scores(frame), tables.costs(frame)]
@@ -262,6 +264,7 @@ def _write(folder: Path, drawing: Drawing, panels: list[str], points_frame: pd.D
         found += [tables.speedup_points(points, settings, margin),
                   tables.serial_fraction(fits)]
         out.speedup = tables.speedup_summary(points, fits)
+        from harness.report import speedup_plots  # matplotlib, only with a speedup run
         draw("speedup", speedup_plots.speedup_plot(points, fits))
         draw("fit_time_vs_workers", speedup_plots.fit_time_plot(points, fits))
     for t in found:
@@ -290,10 +293,10 @@ def _write(folder: Path, drawing: Drawing, panels: list[str], points_frame: pd.D
 
 
 def _pairs_note(v: Verdict | None) -> str:
-    if v is None or v.across is None or len(v.across) <= verdict_plots.MAX_PAIRS:
+    if v is None or v.across is None or len(v.across) <= MAX_PAIRS:
         return ""
     return (f"{len(v.ranks)} strategies make {len(v.across)} pairs: the pictures show the "
-            f"{len(verdict_plots.drawn_pairs(v))} pairs of the best-ranked strategy, {v.best} "
+            f"{len(drawn_pairs(v))} pairs of the best-ranked strategy, {v.best} "
             "(more would take longer to draw than the rest of the report and be too tall to "
             "read); tables/pairs_across.csv has every pair.")
 
