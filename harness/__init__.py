@@ -32,7 +32,8 @@ def load_results(folder, *, plan_only: bool = True):
     test evidence of single-split cells, `harness.row_evidence`), for tuned strategies
     ``tuned`` (True), ``configuration`` (the chosen value of every tuned parameter),
     ``trials``, ``search_seconds`` and ``refit_seconds`` (``fit_seconds`` is their sum), and
-    one column per metric named after its scikit-learn scorer.
+    one column per metric named after its scikit-learn scorer. Text columns hold Python
+    strings (NumPy ``object``; missing text is NaN).
     """
     from harness.store import Store
 
