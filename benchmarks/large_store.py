@@ -244,12 +244,13 @@ LOAD_RESULTS = ("import sys, time, harness; t = time.perf_counter(); "
 
 
 class TreeMemory:
-    """Samples, every ``every`` seconds (often enough for a run of seconds, seldom enough not to slow it), the memory of a process and all its descendants (the
-    report's drawing process among them) as the sum of their proportional set sizes: each
-    page shared between them (a fork's) counted once in all. Linux; elsewhere NaN."""
+    """Samples, every ``every`` seconds (often enough for a run of seconds, seldom enough
+    not to slow it), the memory of a process and all its descendants (the report's drawing
+    process among them) as the sum of their proportional set sizes: each page shared between
+    them (a fork's) counted once in all. Linux; elsewhere NaN."""
 
     def __init__(self, pid: int, every: float = 0.2) -> None:
-        self.pid, self.every, self.peak = pid, every, float("nan")
+        self.pid, self.every, self.peak = pid, every, 0
         self._stop = threading.Event()
         self._thread = threading.Thread(target=self._loop, daemon=True)
         self._thread.start()
@@ -269,15 +270,14 @@ class TreeMemory:
                         pass
             except psutil.Error:
                 return
-            if total:
-                self.peak = max(total, 0 if self.peak != self.peak else self.peak)
+            self.peak = max(self.peak, total)
             self._stop.wait(self.every)
 
     def stop(self) -> float:
-        """Peak bytes seen."""
+        """Peak bytes seen (NaN when none could be read)."""
         self._stop.set()
         self._thread.join()
-        return self.peak
+        return self.peak or float("nan")
 
 
 def run_measured(code: str, args: list[str], label: str) -> dict:

@@ -709,27 +709,21 @@ class Store:
 
     @reported
     def cells_frame(self, *, plan_only: bool = True, curves: bool = True,
-                    datasets: Iterable[str] | None = None,
                     columns: Iterable[str] | None = None) -> pd.DataFrame:
         """One row per cell; one column per metric named after its scorer. ``curves=False``
         leaves out the ensemble-size curves, most of a big frame's memory (`curve_points`
-        reads them for chosen datasets); ``datasets``: only the cells of these; ``columns``:
-        only these of the stored ones, besides the cell's key and identity (dataset,
-        strategy, repeat, fold)."""
+        reads them for chosen datasets); ``columns``: only these of the stored ones, besides
+        the cell's key and identity (dataset, strategy, repeat, fold)."""
         wanted = None if columns is None else {*columns, *_IDENTITY}
         table = [c for (c,) in self.db.execute("SELECT name FROM pragma_table_info('cells')")
                  if c != "scores" and (curves or c != "curve")
                  and (wanted is None or c in wanted)]
         columns = ["key", *(c for c in table if c != "key"), "scores"]
         json_columns = {"scores": "{}", **({"curve": "null"} if curves else {})}
-        names = None if datasets is None else list(datasets)
-        where = [c for c in (self._plan_condition() if plan_only else None,
-                             None if names is None else
-                             f"dataset IN ({', '.join('?' * len(names))})") if c]
+        in_plan = self._plan_condition() if plan_only else None
         frame, parsed = _read(self.db.execute(
             f"SELECT {', '.join(columns)} FROM cells"
-            + (f" WHERE {' AND '.join(where)}" if where else ""), names or ()), json_columns,
-            {"scores": _ScoreChunk})
+            + (f" WHERE {in_plan}" if in_plan else "")), json_columns, {"scores": _ScoreChunk})
         by = ["dataset", "strategy", "repeat", "fold"]
         order = frame[by].sort_values(by, kind="stable").index.to_numpy()
         frame = frame.iloc[order].reset_index(drop=True)

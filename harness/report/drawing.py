@@ -158,18 +158,18 @@ _END = object()
 
 
 class Drawing:
-    """The report's figures under way: a forked child where `can_fork` (or as ``apart``
-    says) reads the curves of ``datasets`` at once; `panels` hands over what the per-dataset
-    figures show, `verdict` the verdict, and `result` returns every figure. Use as a context
-    manager, so that the child is ended however the report ends."""
+    """The report's figures under way: a forked child where `can_fork` reads the curves of
+    ``datasets`` at once; `panels` hands over what the per-dataset figures show, `verdict`
+    the verdict, and `result` returns every figure. Use as a context manager, so that the
+    child is ended however the report ends."""
 
-    def __init__(self, folder: Path, datasets: list[str], apart: bool | None = None) -> None:
+    def __init__(self, folder: Path, datasets: list[str]) -> None:
         self.folder, self.datasets = Path(folder), list(datasets)
         self.shown: Panels | None = None
         self.v: Verdict | None = None
         self.handed: list[str] = []  # what has been handed over: "panels", "verdict"
         self.proc = self.conn = self.sender = None
-        if can_fork() if apart is None else apart:
+        if can_fork():
             ctx = mp.get_context("fork")
             self.conn, theirs = ctx.Pipe()
             self.proc = ctx.Process(target=_child, args=(theirs, self.folder, self.datasets),
