@@ -10,9 +10,9 @@ import pandas as pd
 import pytest
 from scipy import stats
 
-from harness.analysis.stats import (average_ranks, corrected_t, friedman, holm, mcnemar_exact,
-                                   nemenyi_cd, nemenyi_critical_value, nemenyi_groups,
-                                   pareto_front, tally, wilcoxon_holm, wilcoxon_pairs)
+from harness.analysis.stats import (average_ranks, corrected_t, dominance, friedman, holm,
+                                   mcnemar_exact, nemenyi_cd, nemenyi_critical_value,
+                                   nemenyi_groups, tally, wilcoxon_holm, wilcoxon_pairs)
 
 # Demšar (2006), "Statistical comparisons of classifiers over multiple data sets", JMLR 7,
 # Table 6: AUC of C4.5, C4.5+m, C4.5+cf, C4.5+m+cf on fourteen data sets.
@@ -346,19 +346,24 @@ def test_tally_by_hand():
         tally(pairs.drop(columns="verdict"))
 
 
-def test_pareto_front_by_hand():
-    pts = {"A": (0.90, 10.0), "B": (0.85, 2.0), "C": (0.80, 5.0), "D": (0.90, 12.0),
-           "E": (0.95, 50.0), "F": (0.85, 2.0)}
-    out = pareto_front(pts)
+def test_dominance_by_hand():
+    names = ["A", "B", "C", "D", "E", "F"]
+    score = np.array([0.90, 0.85, 0.80, 0.90, 0.95, 0.85])
+    cost = np.array([10.0, 2.0, 5.0, 12.0, 50.0, 2.0])
+    dom = dominance(score, cost, np.zeros(6))
+    by = {n: [names[j] for j in np.flatnonzero(dom[:, i])] for i, n in enumerate(names)}
     # C (0.80, 5) is beaten on both by B and F (0.85, 2) and also by A? A costs 10 > 5: no.
     # D (0.90, 12) ties A on score and costs more: dominated by A only.
     # B and F are identical: neither dominates the other, both on the front.
-    assert out["on_front"].to_dict() == {"A": True, "B": True, "C": False, "D": False,
-                                         "E": True, "F": True}
-    assert out.loc["C", "dominated_by"] == ["B", "F"]
-    assert out.loc["D", "dominated_by"] == ["A"]
-    assert out.loc["E", "dominated_by"] == []
-    frame = pd.DataFrame(pts, index=["score", "cost"]).T
-    assert pareto_front(frame)["on_front"].tolist() == out["on_front"].tolist()
+    assert {n: not d for n, d in by.items()} == {"A": True, "B": True, "C": False, "D": False,
+                                                "E": True, "F": True}
+    assert by["C"] == ["B", "F"]
+    assert by["D"] == ["A"]
+    assert by["E"] == []
+    # with timing noise: D costs 12 ± 2 against A's 10 ± 2, within twice the standard error
+    # of their difference (2·sqrt(8) ≈ 5.7), so D's cost counts as equal and A (same score)
+    # no longer dominates it
+    noisy = dominance(score, cost, np.array([2.0, 0, 0, 2.0, 0, 0]))
+    assert not noisy[0, 3]
     with pytest.raises(ValueError):
-        pareto_front({"x": (np.nan, 1.0)})
+        dominance(np.array([np.nan]), np.array([1.0]), np.zeros(1))

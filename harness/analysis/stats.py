@@ -32,7 +32,7 @@ from scipy import stats as _st
 __all__ = [
     "FriedmanResult", "corrected_t", "mcnemar_exact",
     "average_ranks", "friedman", "nemenyi_critical_value", "nemenyi_cd", "nemenyi_groups",
-    "holm", "wilcoxon_holm", "wilcoxon_pairs", "tally", "pareto_front",
+    "holm", "wilcoxon_holm", "wilcoxon_pairs", "tally", "dominance",
 ]
 
 
@@ -333,19 +333,15 @@ def wilcoxon_pairs(diffs: np.ndarray, a: Sequence[str], b: Sequence[str], alpha:
     Returns one row per pair: ``a, b, n_datasets, a_wins, b_wins, median_diff, statistic, p,
     p_holm, reject``; ``statistic`` is SciPy's (the smaller signed-rank sum).
     """
-    rows = []
-    for name_a, name_b, row in zip(a, b, np.atleast_2d(np.asarray(diffs, dtype=float))):
-        d = np.round(row, _DIFF_DECIMALS)
-        if np.all(d == 0):
-            stat, p = np.nan, 1.0
-        else:
-            res = _st.wilcoxon(d, zero_method=zero_method, method="exact")
-            stat, p = float(res.statistic), float(res.pvalue)
-        rows.append({"a": name_a, "b": name_b, "n_datasets": len(d),
-                     "a_wins": int(np.sum(d > 0)), "b_wins": int(np.sum(d < 0)),
-                     "median_diff": float(np.median(d)), "statistic": stat, "p": p})
-    out = pd.DataFrame(rows, columns=["a", "b", "n_datasets", "a_wins", "b_wins",
-                                      "median_diff", "statistic", "p"])
+    d = np.round(np.atleast_2d(np.asarray(diffs, dtype=float)), _DIFF_DECIMALS)
+    stat, p = np.full(len(d), np.nan), np.ones(len(d))
+    tested = np.any(d != 0, axis=1)
+    if tested.any():  # every row at once (as SciPy tests each row on its own: the same values)
+        res = _st.wilcoxon(d[tested], zero_method=zero_method, method="exact", axis=1)
+        stat[tested], p[tested] = res.statistic, res.pvalue
+    out = pd.DataFrame({"a": list(a), "b": list(b), "n_datasets": d.shape[1],
+                        "a_wins": np.sum(d > 0, axis=1), "b_wins": np.sum(d < 0, axis=1),
+                        "median_diff": np.median(d, axis=1), "statistic": stat, "p": p})
     out["p_holm"], out["reject"] = holm(out["p"].to_numpy(), alpha)
     return out
 
@@ -385,8 +381,13 @@ def tally(pairs: pd.DataFrame) -> pd.DataFrame:
 
 
 def dominance(score: np.ndarray, cost: np.ndarray, noise: np.ndarray) -> np.ndarray:
-    """``dom[j, i]``: point *j* dominates point *i* (`pareto_front` says when); ``noise``:
-    each cost's standard error (0 where unknown)."""
+    """Pareto dominance of score (maximised) against cost (minimised): ``dom[j, i]`` when
+    point *j* dominates point *i*, that is ``score_j ≥ score_i`` and ``cost_j ≤ cost_i`` with
+    at least one strict (the front: the points no other dominates). Identical points do not
+    dominate each other. ``noise``: each cost's standard error (timing noise; 0 where
+    unknown); costs count as equal unless they differ by more than twice the standard error
+    of their difference, ``2 · sqrt(se_i² + se_j²)``, so a verdict does not flip on timing
+    noise."""
     s, c = np.asarray(score, dtype=float), np.asarray(cost, dtype=float)
     if not (np.all(np.isfinite(s)) and np.all(np.isfinite(c))):
         raise ValueError("scores and costs must be finite")
@@ -396,40 +397,3 @@ def dominance(score: np.ndarray, cost: np.ndarray, noise: np.ndarray) -> np.ndar
     not_dearer = c[:, None] - c[None, :] <= margin
     return ((s[:, None] >= s[None, :]) & not_dearer
             & ((s[:, None] > s[None, :]) | cheaper))
-
-
-def pareto_front(points: Mapping[str, tuple[float, float]] | pd.DataFrame) -> pd.DataFrame:
-    """Pareto front of score (maximised) against cost (minimised).
-
-    Parameters
-    ----------
-    points : mapping or DataFrame
-        Name → ``(score, cost)``, or a DataFrame indexed by name with columns
-        ``score`` and ``cost``, and optionally ``cost_noise``: the standard error of each
-        cost (timing noise).
-
-    Returns
-    -------
-    DataFrame
-        Indexed by name, in input order: ``score, cost, on_front, dominated_by``.
-        Entry *j* dominates *i* when ``score_j ≥ score_i`` and ``cost_j ≤ cost_i`` with at
-        least one strict; ``dominated_by`` lists the dominating names (empty on the front).
-        Identical points do not dominate each other. With ``cost_noise``, costs count as equal
-        unless they differ by more than twice the standard error of their difference,
-        ``2 · sqrt(se_i² + se_j²)``, so a verdict does not flip on timing noise.
-    """
-    if isinstance(points, pd.DataFrame):
-        frame = points[["score", "cost"]].astype(float)
-        noise = (points["cost_noise"].astype(float).fillna(0.0).to_numpy()
-                 if "cost_noise" in points else np.zeros(len(points)))
-    else:
-        frame = pd.DataFrame.from_dict(dict(points), orient="index", columns=["score", "cost"],
-                                       dtype=float)
-        noise = np.zeros(len(frame))
-    dom = dominance(frame["score"].to_numpy(), frame["cost"].to_numpy(), noise)
-    names = list(frame.index)
-    out = frame.copy()
-    out["dominated_by"] = [[names[j] for j in np.flatnonzero(dom[:, i])]
-                           for i in range(len(names))]
-    out["on_front"] = [not dom[:, i].any() for i in range(len(names))]
-    return out[["score", "cost", "on_front", "dominated_by"]]
