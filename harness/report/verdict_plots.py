@@ -9,6 +9,7 @@ from __future__ import annotations
 import math
 
 import numpy as np
+from matplotlib.collections import LineCollection
 from matplotlib.figure import Figure
 
 from harness.analysis.verdict import Verdict
@@ -29,37 +30,51 @@ def _project(samples: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
 def triangles(v: Verdict, max_cols: int = 4) -> Figure | None:
     """One triangle per pair: each dot a posterior sample of the three probabilities; the
     lines from the centre split the triangle into the three outcomes' regions (where that
-    outcome is the most probable)."""
+    outcome is the most probable). The triangles are laid out on one axes without ticks (a
+    set of axes per pair took three times as long to draw, for the same picture)."""
     if v.across is None or not v.posterior:
         return None
     drawn = drawn_pairs(v)
     pairs = list(drawn[["a", "b"]].itertuples(index=False, name=None))
     cols = min(max_cols, len(pairs))
     rows = math.ceil(len(pairs) / cols)
-    fig = Figure(figsize=(max(3.0 * cols, 6.0), 2.7 * rows + 0.5))
-    axes = list(fig.subplots(rows, cols, squeeze=False).flat)
-    centre = (0.5, _H / 3)
-    for ax, (a, b), (_, r) in zip(axes, pairs, drawn.iterrows()):
+    width, height = max(3.0 * cols, 6.0), 2.7 * rows + 0.5
+    fig = Figure(figsize=(width, height))
+    # in inches: a cell of width / cols by 2.7 per pair and 0.5 for the title; a triangle's
+    # side at most 1.5, so that the labels centred at its corners fit between triangles
+    # (about 0.058 inch a character at this size, with a little to spare)
+    longest = max(len(plain(name)) for pair in pairs for name in pair)
+    unit = max(0.8, min(1.5, width / cols - 0.058 * longest - 0.1))
+    cell_w, cell_h = width / cols / unit, 2.7 / unit
+    ax = fig.add_axes((0, 0, 1, 1 - 0.5 / height))
+    ax.set_xlim(0, width / unit)
+    ax.set_ylim(0, (height - 0.5) / unit)
+    centre = np.array([0.5, _H / 3])
+    outline, spokes, xs, ys = [], [], [], []
+    for k, ((a, b), (_, r)) in enumerate(zip(pairs, drawn.iterrows())):
+        # the triangle and its labels (0.3 below, 0.12 above) centred in the cell
+        at = np.array([(k % cols + 0.5) * cell_w - 0.5,
+                       (rows - 1 - k // cols + 0.5) * cell_h - (_H - 0.18) / 2])
+        outline.append(np.array([[0, 0], [1, 0], [0.5, _H], [0, 0]]) + at)
+        spokes += [np.array([centre, m]) + at for m in ((0.5, 0), (0.25, _H / 2), (0.75, _H / 2))]
         x, y = _project(v.posterior[(a, b)])
-        ax.plot([0, 1, 0.5, 0], [0, 0, _H, 0], color="#444444", linewidth=1)
-        for mx, my in ((0.5, 0), (0.25, _H / 2), (0.75, _H / 2)):
-            ax.plot([centre[0], mx], [centre[1], my], color="#bbbbbb", linewidth=0.8)
-        ax.scatter(x, y, s=4, alpha=0.2, color="#1f4e79", linewidths=0, rasterized=True)
-        ax.text(0, -0.05, f"{plain(a)}\n{r['p_a']:.2f}", ha="center", va="top", fontsize=7.5,
-                color=A_COLOUR)
-        ax.text(1, -0.05, f"{plain(b)}\n{r['p_b']:.2f}", ha="center", va="top", fontsize=7.5,
-                color=B_COLOUR)
-        ax.text(0.5, _H + 0.03, f"equivalent {r['p_eq']:.2f}", ha="center", va="bottom",
-                fontsize=7.5, color="#555555")
-        ax.set_xlim(-0.3, 1.3)
-        ax.set_ylim(-0.3, _H + 0.12)
-        ax.set_aspect("equal")
-        ax.axis("off")
-    for ax in axes[len(pairs):]:
-        ax.set_visible(False)
+        xs.append(x + at[0])
+        ys.append(y + at[1])
+        ax.text(at[0], at[1] - 0.05, f"{plain(a)}\n{r['p_a']:.2f}", ha="center", va="top",
+                fontsize=7.5, color=A_COLOUR)
+        ax.text(at[0] + 1, at[1] - 0.05, f"{plain(b)}\n{r['p_b']:.2f}", ha="center", va="top",
+                fontsize=7.5, color=B_COLOUR)
+        ax.text(at[0] + 0.5, at[1] + _H + 0.03, f"equivalent {r['p_eq']:.2f}", ha="center",
+                va="bottom", fontsize=7.5, color="#555555")
+    ax.add_collection(LineCollection(spokes, colors="#bbbbbb", linewidths=0.8))
+    ax.add_collection(LineCollection(outline, colors="#444444", linewidths=1))
+    ax.scatter(np.concatenate(xs), np.concatenate(ys), s=4, alpha=0.2, color="#1f4e79",
+               linewidths=0, rasterized=True)
+    ax.set_aspect("equal")
+    ax.axis("off")
     fig.suptitle(f"Posterior of the Bayesian signed-rank test per pair ({len(v.matrix)} "
-                 "datasets); corner labels: the probability of each outcome", fontsize=10)
-    fig.tight_layout()  # it leaves room for the suptitle itself
+                 "datasets); corner labels: the probability of each outcome", fontsize=10,
+                 y=1 - 0.15 / height, va="top")
     return fig
 
 
