@@ -93,16 +93,33 @@ def test_an_error_while_drawing_is_raised_by_the_report(folder, tmp_path, monkey
         write_report(folder, out=tmp_path / "here")
 
 
-def test_a_drawing_process_that_dies_is_replaced_by_drawing_here(folder, tmp_path):
+@pytest.mark.parametrize("when", ["at once", "with what it was handed unread"])
+def test_a_drawing_process_that_dies_is_replaced_by_drawing_here(folder, tmp_path, when):
+    # a process that dies with data unread in its end of the pipe resets the connection
+    # (ECONNRESET) rather than closing it: the report must draw in process either way
     write_report(folder, out=tmp_path / "reference")
-    setup = """
-        parent = os.getpid()
-        real_curves = drawing.read_curves
+    unread = when != "at once"
+    handed = tmp_path / "handed"  # made once the report has handed over the panels
+    setup = f"""
+        import pathlib, time
+        parent, handed = os.getpid(), pathlib.Path({str(handed)!r})
+        real_curves, real_panels, real_result = (drawing.read_curves, drawing.Drawing.panels,
+                                                 drawing.Drawing.result)
         def dies_in_the_child(*args):
             if os.getpid() != parent:
+                while {unread} and not handed.exists():
+                    time.sleep(0.05)
                 os.kill(os.getpid(), signal.SIGKILL)
             return real_curves(*args)
+        def panels(self, shown):
+            real_panels(self, shown)
+            time.sleep(0.5)  # the sending thread sends them
+            handed.touch()
+        def late(self):
+            time.sleep(1.0 if {unread} else 0)  # the child is gone by now
+            return real_result(self)
         drawing.read_curves = dies_in_the_child
+        drawing.Drawing.panels, drawing.Drawing.result = panels, late
     """
     done = report_apart(folder, tmp_path / "out", setup)
     assert "forked [True]" in done.stdout and "raised" not in done.stdout

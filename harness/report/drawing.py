@@ -17,6 +17,7 @@ own process, when they are asked for. Either way the bytes are the same.
 from __future__ import annotations
 
 import dataclasses
+import gc
 import multiprocessing as mp
 import pickle
 import queue
@@ -136,8 +137,9 @@ def _child(conn, folder: Path, datasets: list[str]) -> None:
     signal.signal(signal.SIGTERM, signal.SIG_DFL)
     die_with_parent()
     try:
-        curves = read_curves(folder, datasets)
         _plotting()  # loaded while the report reads the cells
+        gc.freeze()  # matplotlib's objects set aside too (`harness.collector.set_aside`)
+        curves = read_curves(folder, datasets)
         images = dataset_images(curves, conn.recv())
         del curves
         found = ("images", {**verdict_images(conn.recv()), **images})
@@ -215,7 +217,7 @@ class Drawing:
             return self._here()
         try:
             kind, found = self.conn.recv()
-        except EOFError:
+        except (EOFError, OSError):  # gone; a reset when it died with data unread
             kind, found = "images", None
         finally:
             self.close(wait=5.0)

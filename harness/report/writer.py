@@ -19,6 +19,7 @@ from harness.analysis import tuning
 from harness.analysis.results import primary_metrics, strategy_means
 from harness.analysis.speedup import summarize
 from harness.analysis.verdict import Verdict, verdict
+from harness.collector import set_aside
 from harness.files import writable_folder, write_bytes, write_text
 from harness.folder_lock import running_elsewhere
 from harness.report import tables, tuning_tables, words
@@ -175,6 +176,13 @@ def write_report(folder: str | Path, recommendation: list[str] | None = None,
     such as warnings) at the top of the page. ``outputs.json`` comes last, naming the store
     state the outputs show."""
     folder = Path(folder)
+    with set_aside():  # the libraries' objects: no collection walks them during the report
+        return _report(folder, recommendation, recommendation_sections, out)
+
+
+def _report(folder: Path, recommendation: list[str] | None,
+            recommendation_sections: list[tuple[str, list[str]]] | None,
+            out: str | Path | None) -> Outputs:
     with Store(folder, read_only=True) as store:
         counts = store.plan_counts()
         points_frame = store.speedup_frame()
