@@ -16,7 +16,7 @@ PACKAGE = Path(__file__).resolve().parents[1] / "harness"
 # Layers from the bottom up; a module may import only from its own layer or those below.
 LAYERS = [
     ("harness.errors", "harness.interrupts", "harness.files", "harness.names",
-     "harness.versions", "harness.locks", "harness.provenance"),
+     "harness.versions", "harness.locks", "harness.provenance", "harness.collector"),
     ("harness.datasets", "harness.spaces", "harness.strategies", "harness.suite",
      "harness.datacheck", "harness.scorers"),
     ("harness.splits", "harness.preprocess", "harness.work_units", "harness.row_evidence",
