@@ -31,7 +31,7 @@ def triangles(v: Verdict, max_cols: int = 4) -> Figure | None:
     """One triangle per pair: each dot a posterior sample of the three probabilities; the
     lines from the centre split the triangle into the three outcomes' regions (where that
     outcome is the most probable). The triangles are laid out on one axes without ticks (a
-    set of axes per pair took three times as long to draw, for the same picture)."""
+    set of axes per pair took twice as long to draw, for the same picture)."""
     if v.across is None or not v.posterior:
         return None
     drawn = drawn_pairs(v)
