@@ -28,7 +28,7 @@ def set_aside() -> Iterator[None]:
     """The objects alive at the start of the block are left out of every collection until
     its end (`gc.freeze`; `gc.unfreeze` hands them back); what the block makes is collected
     as usual. On 100,000 cells this halved the report's collection time: 0.31–0.38 s to
-    0.16–0.18 s in its own process, 0.49–0.52 s to 0.20–0.25 s in its drawing process."""
+    0.13–0.20 s in its own process, 0.49–0.52 s to 0.20–0.25 s in its drawing process."""
     gc.freeze()
     try:
         yield
