@@ -176,13 +176,6 @@ def write_report(folder: str | Path, recommendation: list[str] | None = None,
     such as warnings) at the top of the page. ``outputs.json`` comes last, naming the store
     state the outputs show."""
     folder = Path(folder)
-    with set_aside():  # the libraries' objects: no collection walks them during the report
-        return _report(folder, recommendation, recommendation_sections, out)
-
-
-def _report(folder: Path, recommendation: list[str] | None,
-            recommendation_sections: list[tuple[str, list[str]]] | None,
-            out: str | Path | None) -> Outputs:
     with Store(folder, read_only=True) as store:
         counts = store.plan_counts()
         points_frame = store.speedup_frame()
@@ -191,8 +184,10 @@ def _report(folder: Path, recommendation: list[str] | None,
         panels = list(dict.fromkeys(d for d, _, _ in counts))[:MAX_PANELS]
     # the figures are drawn from here on in a second process (`harness.report.drawing`);
     # one BLAS thread here: the report's matrices are small, and a BLAS thread waiting for
-    # the core the figures take made the verdict 1.5 s slower on 100,000 cells
-    with Drawing(folder, panels) as drawing, threadpool_limits(1, user_api="blas"):
+    # the core the figures take made the verdict 1.5 s slower on 100,000 cells; no garbage
+    # collection walks the libraries' objects meanwhile (`set_aside`)
+    with set_aside(), Drawing(folder, panels) as drawing, \
+            threadpool_limits(1, user_api="blas"):
         return _write(folder, drawing, panels, points_frame, runs, last,
                       recommendation or [], recommendation_sections or [], out)
 
